@@ -1,0 +1,1 @@
+"""Benchmarks of wallscreen, and the plain per-wall implementation they compare against."""

@@ -1,0 +1,5 @@
+"""``python -m benchmarks`` prints the benchmark table."""
+
+from benchmarks.run import main
+
+main()

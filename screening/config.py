@@ -1,0 +1,191 @@
+"""Settings of a screening run: required factors, case definitions and the defaults
+that fill blanks in a sparse register.
+
+Every default carries its source, because an owner must be able to see on what
+ground a blank was filled (method.md §7). The whole object is frozen; load a
+variant from TOML with :func:`load_config`.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import tomllib
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from types import MappingProxyType
+from typing import Any
+
+from screening.errors import ConfigError
+
+GAMMA_W_KN_M3 = 9.81
+"""Unit weight of water [kN/m³]."""
+
+MATERIALS = ("mass_concrete", "stone_masonry", "brick_masonry", "drystone")
+FOUNDATIONS = ("rock", "gravel", "sand", "stiff_clay", "firm_clay", "soft_clay")
+DRAINAGE_STATES = ("working", "partial", "blocked", "unknown")
+CONSEQUENCES = ("railway", "road", "building", "footpath", "open_land")
+CASES = ("drained", "blocked", "surveyed")
+
+
+def _frozen(mapping: Mapping[str, Any]) -> Mapping[str, Any]:
+    return MappingProxyType(dict(mapping))
+
+
+@dataclass(frozen=True)
+class Default:
+    """A value used where the register is blank, with where it comes from."""
+
+    value: float
+    source: str
+
+
+@dataclass(frozen=True)
+class Config:
+    """All options of a screening run, with the source of every default.
+
+    Attributes mirror method.md; change them in a TOML file (see
+    ``sample_inventory/config.toml``), never in code.
+    """
+
+    # --- required factors of safety (common practice, e.g. Das; from memory)
+    fos_sliding_required: float = 1.5
+    fos_overturning_required: float = 2.0
+    # --- loads
+    uplift: bool = True
+    gamma_w_kn_m3: float = GAMMA_W_KN_M3
+    # --- surveyed case: water height as a fraction of the retained height
+    # (EN 1997-1 §9.6 via Bond & Harris: water to the top of the fill when
+    # drainage cannot be relied on; "partial" at half height is our choice)
+    drainage_water_fraction: Mapping[str, float] = field(
+        default_factory=lambda: _frozen({"working": 0.0, "partial": 0.5, "blocked": 1.0, "unknown": 1.0})
+    )
+    # --- wall unit weight by material [kN/m³]
+    wall_unit_weight_kn_m3: Mapping[str, Default] = field(
+        default_factory=lambda: _frozen(
+            {
+                "mass_concrete": Default(24.0, "EN 1991-1-1 Annex A, plain concrete"),
+                "stone_masonry": Default(22.0, "EN 1991-1-1 Annex A, stone masonry"),
+                "brick_masonry": Default(20.0, "EN 1991-1-1 Annex A, brick masonry"),
+                "drystone": Default(18.0, "solid stone less 20-45 % voids (common practice, no source)"),
+            }
+        )
+    )
+    material_default: str = "stone_masonry"
+    """Material assumed when the register gives neither material nor unit weight."""
+    # --- backfill
+    soil_unit_weight_kn_m3: Default = Default(19.0, "common practice for granular fill")
+    soil_saturated_unit_weight_kn_m3: Default = Default(20.0, "common practice for granular fill")
+    soil_friction_deg: Default = Default(30.0, "common practice, conservative for granular fill")
+    wall_friction_deg: Default = Default(0.0, "conservative: smooth back")
+    backfill_slope_deg: Default = Default(0.0, "level backfill assumed")
+    surcharge_kpa: Default = Default(10.0, "BS 8002:1994 minimum surcharge")
+    joint_friction_deg: Default = Default(35.0, "masonry on masonry, NAVFAC DM 7.02 Table 1")
+    lean_deg: Default = Default(0.0, "no lean recorded: plumb assumed")
+    front_batter_m: Default = Default(0.0, "no batter recorded: vertical front assumed")
+    # --- foundation: (allowable bearing kPa, base friction deg)
+    foundation_allowable_bearing_kpa: Mapping[str, float] = field(
+        default_factory=lambda: _frozen(
+            {
+                "rock": 1000.0,
+                "gravel": 200.0,
+                "sand": 100.0,
+                "stiff_clay": 150.0,
+                "firm_clay": 75.0,
+                "soft_clay": 40.0,
+            }
+        )
+    )
+    foundation_base_friction_deg: Mapping[str, float] = field(
+        default_factory=lambda: _frozen(
+            {
+                "rock": 35.0,
+                "gravel": 29.0,
+                "sand": 24.0,
+                "stiff_clay": 17.0,
+                "firm_clay": 17.0,
+                "soft_clay": 17.0,
+            }
+        )
+    )
+    foundation_source: str = (
+        "presumed values after BS 8004:1986 Table 1 and NAVFAC DM 7.02 Table 1 "
+        "(conservative ends of their ranges)"
+    )
+    foundation_default: str = "firm_clay"
+    """Foundation class assumed when the register is blank (a cautious middle choice)."""
+    # --- priority (see screening/priority.py)
+    consequence_weight: Mapping[str, float] = field(
+        default_factory=lambda: _frozen(
+            {"open_land": 1.0, "footpath": 2.0, "road": 3.0, "building": 4.0, "railway": 5.0}
+        )
+    )
+    consequence_default: str = "road"
+    condition_default: Default = Default(3.0, "not recorded: middle of the 1-5 scale assumed")
+    # --- run
+    chunk_size: int = 200_000
+    """Walls screened per pass; larger registers are processed in chunks."""
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain nested dict of every setting (for the settings sheet and the history)."""
+
+        def plain(value: Any) -> Any:
+            if isinstance(value, Default):
+                return {"value": value.value, "source": value.source}
+            if isinstance(value, Mapping):
+                return {k: plain(v) for k, v in value.items()}
+            return value
+
+        return {f.name: plain(getattr(self, f.name)) for f in dataclasses.fields(self)}
+
+
+def load_config(path: str | Path | None) -> Config:
+    """Read a TOML file of overrides onto the defaults.
+
+    Keys are the attribute names of :class:`Config`. A ``Default`` may be given as
+    a number (the source then reads "set in <file>") or as a table with ``value``
+    and ``source``. Mappings are merged key by key.
+    """
+    base = Config()
+    if path is None:
+        return base
+    path = Path(path)
+    try:
+        data = tomllib.loads(path.read_text(encoding="utf-8"))
+    except (OSError, tomllib.TOMLDecodeError) as exc:
+        raise ConfigError(f"cannot read the config file {path}: {exc}") from exc
+    known = {f.name: f for f in dataclasses.fields(base)}
+    changes: dict[str, Any] = {}
+    for key, value in data.items():
+        if key not in known:
+            raise ConfigError(
+                f"{path}: unknown setting {key!r}; known settings are {', '.join(sorted(known))}"
+            )
+        current = getattr(base, key)
+        if isinstance(current, Default):
+            if isinstance(value, Mapping):
+                changes[key] = Default(float(value["value"]), str(value.get("source", path.name)))
+            else:
+                changes[key] = Default(float(value), f"set in {path.name}")
+        elif isinstance(current, Mapping):
+            if not isinstance(value, Mapping):
+                raise ConfigError(f"{path}: setting {key!r} must be a table")
+            merged = dict(current)
+            for k, v in value.items():
+                old = merged.get(k)
+                if isinstance(old, Default):
+                    merged[k] = Default(float(v), f"set in {path.name}")
+                else:
+                    merged[k] = float(v)
+            changes[key] = _frozen(merged)
+        elif isinstance(current, bool):
+            if not isinstance(value, bool):
+                raise ConfigError(f"{path}: setting {key!r} must be true or false")
+            changes[key] = value
+        elif isinstance(current, (int, float)):
+            if isinstance(value, bool) or not isinstance(value, (int, float)):
+                raise ConfigError(f"{path}: setting {key!r} must be a number, got {value!r}")
+            changes[key] = type(current)(value)
+        else:
+            changes[key] = str(value)
+    return dataclasses.replace(base, **changes)

@@ -1,0 +1,37 @@
+"""The register I/O layer: readers, column mapping, locations and atomic writers."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import pandas as pd
+
+from screening.io.mapping import ColumnMapping, load_mapping, to_canonical
+from screening.io.readers import RawRegister, read_register
+
+
+@dataclass(frozen=True)
+class LoadedRegister:
+    """A register in canonical columns, with where it came from."""
+
+    frame: pd.DataFrame
+    labels: dict[str, str]
+    shown: pd.DataFrame
+    raw: RawRegister
+    mapping: ColumnMapping
+
+
+def load_register(
+    path: str | Path, *, mapping: str | Path | None = None, sheet: str | int | None = None
+) -> LoadedRegister:
+    """Read a register file and map it onto the canonical columns (read-only)."""
+    colmap = load_mapping(mapping)
+    raw = read_register(
+        path, sheet=sheet if sheet is not None else colmap.sheet, known_headers=colmap.headers
+    )
+    frame, labels, shown = to_canonical(raw, colmap)
+    return LoadedRegister(frame, labels, shown, raw, colmap)
+
+
+__all__ = ["LoadedRegister", "load_register", "read_register"]

@@ -1,0 +1,104 @@
+"""Where each wall is: WKT geometry, lat/lon, or easting/northing in a named CRS.
+
+Everything is returned in WGS84 (EPSG:4326). Walls without a usable location
+are screened as usual and reported as not mapped.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import shapely
+from pyproj import Transformer
+from pyproj.exceptions import CRSError
+
+from screening.errors import RegisterError
+
+
+def locate(walls: pd.DataFrame, crs: str | None = None) -> tuple[np.ndarray, pd.DataFrame]:
+    """Geometry of every wall (shapely objects or None) and warnings for unusable ones.
+
+    Parameters
+    ----------
+    walls : pandas.DataFrame
+        Canonical columns ``geometry`` (WKT), ``lat``/``lon``, ``easting``/``northing``
+        and ``row``, ``wall_id``.
+    crs : str, optional
+        CRS of ``easting``/``northing`` (e.g. ``"EPSG:27700"``).
+
+    Returns
+    -------
+    geometry : numpy.ndarray of shapely geometries (None where not located)
+    problems : pandas.DataFrame of warnings (row, wall_id, column, value, severity, message)
+    """
+    n = len(walls)
+    geom = np.full(n, None, dtype=object)
+    problems = []
+    wkt = walls["geometry"] if "geometry" in walls else pd.Series(None, index=walls.index)
+    has_wkt = wkt.notna().to_numpy()
+    if has_wkt.any():
+        parsed = shapely.from_wkt(wkt[has_wkt].astype(str).to_numpy(), on_invalid="ignore")
+        ok = np.array(
+            [
+                g is not None and not g.is_empty and g.geom_type in ("Point", "LineString", "MultiLineString")
+                for g in parsed
+            ]
+        )
+        idx = np.flatnonzero(has_wkt)
+        geom[idx[ok]] = parsed[ok]
+        bad = np.zeros(n, dtype=bool)
+        bad[idx[~ok]] = True
+        problems.append(
+            _warn(
+                walls, bad, "geometry", wkt, "expected WKT of a Point or LineString in WGS84; wall not mapped"
+            )
+        )
+    need = np.array([g is None for g in geom], dtype=bool)
+    lat = (
+        pd.to_numeric(walls.get("lat"), errors="coerce").to_numpy(dtype=float)
+        if "lat" in walls
+        else np.full(n, np.nan)
+    )
+    lon = (
+        pd.to_numeric(walls.get("lon"), errors="coerce").to_numpy(dtype=float)
+        if "lon" in walls
+        else np.full(n, np.nan)
+    )
+    use = need & np.isfinite(lat) & np.isfinite(lon)
+    geom[use] = shapely.points(lon[use], lat[use])
+    need &= ~use
+    east = walls["easting"].to_numpy(dtype=float) if "easting" in walls else np.full(n, np.nan)
+    north = walls["northing"].to_numpy(dtype=float) if "northing" in walls else np.full(n, np.nan)
+    use = need & np.isfinite(east) & np.isfinite(north)
+    if use.any():
+        if not crs:
+            raise RegisterError(
+                "the register gives easting/northing but no CRS: name it in the mapping file "
+                '([register] crs = "EPSG:27700", for example)'
+            )
+        try:
+            tf = Transformer.from_crs(crs, "EPSG:4326", always_xy=True)
+        except CRSError as exc:
+            raise RegisterError(f"unknown CRS {crs!r}: {exc}") from exc
+        x, y = tf.transform(east[use], north[use])
+        geom[use] = shapely.points(x, y)
+    problems = [p for p in problems if len(p)]
+    return geom, (
+        pd.concat(problems, ignore_index=True) if problems else _warn(walls, np.zeros(n, bool), "", None, "")
+    )
+
+
+def _warn(
+    walls: pd.DataFrame, mask: np.ndarray, column: str, values: pd.Series | None, message: str
+) -> pd.DataFrame:
+    hit = walls[mask]
+    return pd.DataFrame(
+        {
+            "row": hit["row"].to_numpy(),
+            "wall_id": hit["wall_id"].to_numpy(),
+            "column": column,
+            "value": values[mask].astype(str).to_numpy() if values is not None else "",
+            "severity": "warning",
+            "message": message,
+        }
+    )

@@ -1,0 +1,243 @@
+"""Read a wall register from a spreadsheet, CSV or GIS file, read-only.
+
+What comes back is a :class:`RawRegister`: the cells as read (not yet typed),
+the row number the user sees for each, and the user's own header for each
+canonical column, so that every message can point at the user's file.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from screening import schema
+from screening.errors import RegisterError
+
+SPREADSHEETS = (".xlsx", ".xlsm", ".xls", ".ods")
+GIS = (".gpkg", ".geojson", ".json", ".shp")
+SUFFIXES = (".csv", ".txt", *SPREADSHEETS, *GIS)
+
+
+@dataclass
+class RawRegister:
+    """Cells as read, before casting.
+
+    Attributes
+    ----------
+    frame : pandas.DataFrame
+        The user's columns, plus ``row`` (the row number the user sees).
+    source : pathlib.Path
+    sheet : str or None
+        The sheet read, for spreadsheets.
+    header_row : int
+        The row (1-based) that held the headers.
+    crs : str or None
+        The layer's CRS, for GIS files.
+    notes : list of str
+        What the reader noticed (encoding, delimiter, ...), for the report.
+    """
+
+    frame: pd.DataFrame
+    source: Path
+    sheet: str | None = None
+    header_row: int = 1
+    crs: str | None = None
+    notes: list[str] = field(default_factory=list)
+
+
+def read_register(
+    path: str | Path, *, sheet: str | int | None = None, known_headers: set[str] | None = None
+) -> RawRegister:
+    """Read a register file; the file is opened read-only and never written.
+
+    Parameters
+    ----------
+    path : str or Path
+        ``.csv``/``.txt``, ``.xlsx``/``.xlsm``/``.xls``/``.ods`` or
+        ``.gpkg``/``.geojson``/``.shp``.
+    sheet : str or int, optional
+        Sheet name or 0-based index for spreadsheets (default: the first sheet).
+    known_headers : set of str, optional
+        Headers to look for when finding the header row (canonical names and
+        the mapping file's headers).
+    """
+    path = Path(path)
+    if not path.exists():
+        raise RegisterError(f"{path}: no such file")
+    if not path.is_file():
+        raise RegisterError(f"{path}: not a file")
+    suffix = path.suffix.lower()
+    known = {h.strip().lower() for h in (known_headers or set())} | set(schema.COLUMNS)
+    if suffix in (".csv", ".txt"):
+        return _read_csv(path, known)
+    if suffix in SPREADSHEETS:
+        return _read_spreadsheet(path, sheet, known)
+    if suffix in GIS:
+        return _read_gis(path)
+    raise RegisterError(
+        f"{path}: unsupported file type {suffix or '(none)'}; expected one of {', '.join(SUFFIXES)}"
+    )
+
+
+def _find_header(grid: pd.DataFrame, known: set[str], path: Path) -> int:
+    """Index of the row that looks most like the header (within the first 20 rows)."""
+    best, best_hits = 0, -1
+    for i in range(min(20, len(grid))):
+        cells = {str(v).strip().lower() for v in grid.iloc[i].tolist() if _is_text(v)}
+        hits = len(cells & known)
+        if hits > best_hits:
+            best, best_hits = i, hits
+    if best_hits <= 0:
+        raise RegisterError(
+            f"{path}: no header row found in the first 20 rows: none of the headers is a "
+            f"canonical column (e.g. wall_id, height_m) or named in the mapping file"
+        )
+    return best
+
+
+def _is_text(v: object) -> bool:
+    return isinstance(v, str) and bool(v.strip())
+
+
+def _frame_from_grid(grid: pd.DataFrame, header: int, path: Path) -> pd.DataFrame:
+    names = [str(v).strip() if _is_text(v) else "" for v in grid.iloc[header].tolist()]
+    body = grid.iloc[header + 1 :].reset_index(drop=True)
+    keep = [i for i, n in enumerate(names) if n]
+    seen: dict[str, int] = {}
+    for i in keep:
+        if names[i] in seen:
+            raise RegisterError(
+                f"{path}: the header {names[i]!r} appears twice (columns {seen[names[i]] + 1} and {i + 1})"
+            )
+        seen[names[i]] = i
+    frame = body.iloc[:, keep].copy()
+    frame.columns = [names[i] for i in keep]
+    frame["row"] = np.arange(len(frame)) + header + 2
+    # rows where every cell is empty are layout, not walls
+    empty = frame.drop(columns="row").apply(lambda s: s.isna() | s.astype(str).str.strip().eq(""))
+    return frame[~empty.all(axis=1)].reset_index(drop=True)
+
+
+def _decode(data: bytes) -> tuple[str, str]:
+    for encoding in ("utf-8-sig", "cp1252", "latin-1"):
+        try:
+            return data.decode(encoding), encoding
+        except UnicodeDecodeError:
+            continue
+    raise AssertionError("latin-1 decodes every byte")  # pragma: no cover
+
+
+def _read_csv(path: Path, known: set[str]) -> RawRegister:
+    data = path.read_bytes()
+    if not data.strip():
+        raise RegisterError(f"{path}: the file is empty")
+    if b"\x00" in data[:4096] or data[:4] == b"PK\x03\x04":
+        raise RegisterError(f"{path}: not a text file (is it a spreadsheet with the wrong name?)")
+    text, encoding = _decode(data)
+    sample = text[:65536]
+    try:
+        delimiter = csv.Sniffer().sniff(sample, delimiters=",;\t|").delimiter
+    except csv.Error:
+        delimiter = ","
+    # decimal commas go with a semicolon (or tab) delimiter
+    decimal = "," if delimiter in ";\t|" and _looks_decimal_comma(sample, delimiter) else "."
+    grid = pd.read_csv(
+        io.StringIO(text),
+        sep=delimiter,
+        header=None,
+        dtype=str,
+        keep_default_na=False,
+        skip_blank_lines=False,
+    )
+    header = _find_header(grid, known, path)
+    frame = _frame_from_grid(grid, header, path)
+    if decimal == ",":
+        frame = frame.apply(
+            lambda s: (
+                s.str.replace(".", "", regex=False).str.replace(",", ".", regex=False)
+                if s.name != "row" and s.str.fullmatch(r"\s*-?[\d.]*,\d+\s*|\s*-?\d[\d.]*\s*|\s*").all()
+                else s
+            )
+        )
+    else:
+        # thousands separators: "1,250" in a numeric-looking column
+        frame = frame.apply(
+            lambda s: (
+                s.str.replace(",", "", regex=False)
+                if s.name != "row"
+                and s.str.fullmatch(r"\s*-?\d{1,3}(,\d{3})+(\.\d+)?\s*|\s*-?\d*\.?\d*\s*").all()
+                else s
+            )
+        )
+    notes = [f"read as CSV: encoding {encoding}, delimiter {delimiter!r}, decimal {decimal!r}"]
+    return RawRegister(frame, path, header_row=header + 1, notes=notes)
+
+
+def _looks_decimal_comma(sample: str, delimiter: str) -> bool:
+    cells = [c for line in sample.splitlines()[:50] for c in line.split(delimiter)]
+    commas = sum(1 for c in cells if _is_number(c.strip().replace(",", ".", 1)) and "," in c)
+    return commas > 0
+
+
+def _is_number(text: str) -> bool:
+    try:
+        float(text)
+    except ValueError:
+        return False
+    return True
+
+
+def _read_spreadsheet(path: Path, sheet: str | int | None, known: set[str]) -> RawRegister:
+    head = path.read_bytes()[:8]
+    if head.startswith(b"\xd0\xcf\x11\xe0") and path.suffix.lower() != ".xls":
+        raise RegisterError(
+            f"{path}: the workbook is encrypted (password-protected) or an old .xls saved "
+            f"under a new name; remove the password or save it again as .xlsx"
+        )
+    try:
+        book = pd.ExcelFile(path, engine="calamine")
+    except Exception as exc:  # calamine raises its own types for every broken file
+        raise RegisterError(f"{path}: not a readable spreadsheet ({exc})") from exc
+    names = book.sheet_names
+    if sheet is None:
+        chosen = names[0]
+    elif isinstance(sheet, int) or (isinstance(sheet, str) and sheet.isdigit()):
+        index = int(sheet)
+        if not 0 <= index < len(names):
+            raise RegisterError(f"{path}: no sheet number {index}; the sheets are {names}")
+        chosen = names[index]
+    elif sheet in names:
+        chosen = sheet
+    else:
+        raise RegisterError(f"{path}: no sheet named {sheet!r}; the sheets are {names}")
+    grid = book.parse(chosen, header=None, dtype=object)
+    book.close()
+    if grid.empty:
+        raise RegisterError(f"{path}: sheet {chosen!r} is empty")
+    header = _find_header(grid, known, path)
+    frame = _frame_from_grid(grid, header, path)
+    return RawRegister(
+        frame, path, sheet=str(chosen), header_row=header + 1, notes=[f"read sheet {chosen!r}"]
+    )
+
+
+def _read_gis(path: Path) -> RawRegister:
+    import geopandas as gpd
+
+    try:
+        gdf = gpd.read_file(path, engine="pyogrio")
+    except Exception as exc:  # pyogrio raises DataSourceError and friends
+        raise RegisterError(f"{path}: not a readable GIS layer ({exc})") from exc
+    crs = gdf.crs.to_string() if gdf.crs is not None else None
+    if crs is not None and gdf.crs is not None and not gdf.crs.equals("EPSG:4326"):
+        gdf = gdf.to_crs("EPSG:4326")
+    frame = pd.DataFrame(gdf.drop(columns=gdf.geometry.name))
+    geom = gdf.geometry
+    frame["geometry"] = np.where(geom.isna() | geom.is_empty, None, geom.to_wkt())
+    frame["row"] = np.arange(len(frame)) + 1
+    return RawRegister(frame, path, crs=crs, notes=[f"read GIS layer, CRS {crs}"])

@@ -1,0 +1,116 @@
+"""The whole job of ``wallscreen run``: load, screen, rank and write every output."""
+
+from __future__ import annotations
+
+import datetime as dt
+import hashlib
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from screening import __version__
+from screening.config import Config
+from screening.io import LoadedRegister, load_register
+from screening.io.locate import locate
+from screening.io.writers import write_csv
+from screening.pipeline import RESULT_COLUMNS, Screening, evaluate
+
+Progress = Callable[[str], None]
+
+
+@dataclass
+class RunInfo:
+    """Provenance of a run, written with every output."""
+
+    input_file: str
+    input_sha256: str
+    tool_version: str
+    run_time: str
+    config: Config
+    mapping_file: str | None = None
+    sheet: str | None = None
+    notes: list[str] = field(default_factory=list)
+
+
+@dataclass
+class JobResult:
+    """What a run produced and where it went."""
+
+    screening: Screening
+    register: LoadedRegister
+    info: RunInfo
+    walls: pd.DataFrame
+    geometry: np.ndarray
+    outputs: dict[str, Path] = field(default_factory=dict)
+
+    @property
+    def n_rejected(self) -> int:
+        return self.screening.n_rejected
+
+
+def sha256(path: str | Path) -> str:
+    """SHA-256 of a file, read in blocks."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            digest.update(block)
+    return digest.hexdigest()
+
+
+def screen_file(
+    register_path: str | Path,
+    *,
+    mapping: str | Path | None = None,
+    sheet: str | int | None = None,
+    config: Config | None = None,
+) -> JobResult:
+    """Load, screen and locate a register file, without writing anything."""
+    config = config or Config()
+    loaded = load_register(register_path, mapping=mapping, sheet=sheet)
+    run = evaluate(loaded.frame, config, labels=loaded.labels, shown=loaded.shown)
+    info = RunInfo(
+        input_file=Path(register_path).name,
+        input_sha256=sha256(register_path),
+        tool_version=__version__,
+        run_time=dt.datetime.now(dt.UTC).replace(microsecond=0).isoformat(),
+        config=config,
+        mapping_file=str(mapping) if mapping else None,
+        sheet=loaded.raw.sheet,
+        notes=list(loaded.raw.notes),
+    )
+    accepted = run.prepared.walls
+    geometry, geo_problems = locate(accepted, loaded.mapping.crs or loaded.raw.crs)
+    if len(geo_problems):
+        run = Screening(
+            run.prepared,
+            run.results,
+            run.walls,
+            pd.concat([run.problems, geo_problems], ignore_index=True),
+            run.config,
+        )
+    walls = run.walls
+    if len(walls):
+        position = pd.Series(np.arange(len(accepted)), index=accepted["wall_id"].to_numpy())
+        order = position.loc[walls["wall_id"].to_numpy()].to_numpy()
+        walls = walls.copy()
+        geometry = geometry[order]
+        walls["located"] = np.array([g is not None for g in geometry], dtype=bool)
+    return JobResult(run, loaded, info, walls, geometry)
+
+
+def write_outputs(job: JobResult, out_dir: str | Path) -> dict[str, Path]:
+    """Write the CSV outputs of a run into ``out_dir`` (atomically, file by file)."""
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    run = job.screening
+    outputs = {
+        "results": write_csv(run.results.reindex(columns=list(RESULT_COLUMNS)), out / "results.csv"),
+        "walls": write_csv(job.walls, out / "walls.csv"),
+        "problems": write_csv(run.problems, out / "problems.csv"),
+        "assumptions": write_csv(run.prepared.assumptions, out / "assumptions.csv"),
+    }
+    job.outputs.update(outputs)
+    return outputs

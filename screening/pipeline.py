@@ -1,0 +1,192 @@
+"""Run the engine over a register and summarise it per wall.
+
+``screen`` is the public entry point of the Python API; ``evaluate`` keeps
+everything a run produces (problems, assumptions, per-wall summary) together.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from screening.config import CASES, Config
+from screening.engine import run_cases
+from screening.prepare import Prepared, prepare
+from screening.stability import FLOATING, OUTSIDE_BASE
+
+RESULT_COLUMNS = (
+    "wall_id",
+    "case",
+    "water_height_m",
+    "weight_kn_m",
+    "vertical_kn_m",
+    "horizontal_kn_m",
+    "uplift_kn_m",
+    "restoring_moment_knm_m",
+    "overturning_moment_knm_m",
+    "resultant_from_toe_m",
+    "eccentricity_m",
+    "in_middle_third",
+    "toe_pressure_kpa",
+    "heel_pressure_kpa",
+    "fos_sliding",
+    "fos_overturning",
+    "middle_third_utilisation",
+    "bearing_utilisation",
+    "sliding_utilisation",
+    "overturning_utilisation",
+    "crack_eccentricity_m",
+    "crack_middle_third_utilisation",
+    "crack_fos_overturning",
+    "crack_fos_sliding",
+    "utilisation",
+    "governing_check",
+    "margin",
+    "state",
+)
+"""The columns of ``results.csv``, in order (the output contract)."""
+
+
+class RejectedRowsWarning(UserWarning):
+    """Some rows of the register were rejected; the others were screened."""
+
+
+@dataclass(frozen=True)
+class Screening:
+    """Everything one screening run produced."""
+
+    prepared: Prepared
+    results: pd.DataFrame
+    walls: pd.DataFrame
+    problems: pd.DataFrame
+    config: Config
+
+    @property
+    def n_rejected(self) -> int:
+        errors = self.problems[self.problems["severity"] == "error"]
+        return int(errors["row"].nunique())
+
+
+def screen_prepared(prepared: Prepared, config: Config) -> pd.DataFrame:
+    """Long results (one row per wall and case) of a prepared register, in chunks."""
+    n = len(prepared.walls)
+    size = max(int(config.chunk_size), 1)
+    pieces = []
+    for start in range(0, max(n, 1), size):
+        chunk = {k: v[start : start + size] for k, v in prepared.inputs.items()}
+        out = run_cases(chunk, config)
+        index = out.pop("wall_index") + start
+        frame = pd.DataFrame(out)
+        frame.insert(0, "wall_id", prepared.walls["wall_id"].to_numpy()[index])
+        frame["_wall"] = index
+        pieces.append(frame)
+    results = pd.concat(pieces, ignore_index=True)
+    order = pd.Categorical(results["case"], categories=CASES, ordered=True)
+    results = results.assign(_case=order).sort_values(["_wall", "_case"], kind="stable")
+    return results.drop(columns=["_case"]).reset_index(drop=True)
+
+
+def summarise_walls(results: pd.DataFrame, walls: pd.DataFrame) -> pd.DataFrame:
+    """One row per wall: worst case, governing check, margin, flags and rank.
+
+    The worst case is the case with the largest utilisation; rank 1 is the
+    least margin.
+    """
+    wide = results.pivot(index="_wall", columns="case", values="utilisation")[list(CASES)]
+    util = wide.to_numpy()
+    worst_idx = np.argmax(np.where(np.isnan(util), -np.inf, util), axis=1)
+    worst_case = np.asarray(CASES)[worst_idx]
+    by_key = results.set_index(["_wall", "case"])
+    keys = list(zip(wide.index, worst_case, strict=True))
+    worst = by_key.loc[keys]
+    outside = results.assign(flag=~results["in_middle_third"]).groupby("_wall")["flag"].any()
+    over = results.assign(flag=results["bearing_utilisation"] > 1).groupby("_wall")["flag"].any()
+    summary = pd.DataFrame(
+        {
+            "wall_id": walls["wall_id"].to_numpy()[wide.index],
+            "name": walls["name"].to_numpy()[wide.index],
+            "worst_case": worst_case,
+            "governing_check": worst["governing_check"].to_numpy(),
+            "utilisation": worst["utilisation"].to_numpy(),
+            "margin": worst["margin"].to_numpy(),
+            "state": worst["state"].to_numpy(),
+        },
+        index=wide.index,
+    )
+    for case in CASES:
+        summary[f"utilisation_{case}"] = wide[case].to_numpy()
+    summary["outside_middle_third"] = outside.reindex(wide.index).to_numpy()
+    summary["over_allowable_bearing"] = over.reindex(wide.index).to_numpy()
+    # least margin first; among walls whose resultant leaves the base (margin -inf)
+    # the one whose resultant lies further out comes first
+    summary["_far"] = worst["middle_third_utilisation"].to_numpy()
+    summary = summary.sort_values(["margin", "_far"], ascending=[True, False], kind="stable")
+    summary["rank"] = np.arange(1, len(summary) + 1)
+    return summary.drop(columns="_far").reset_index(drop=True)
+
+
+def _floating_problems(results: pd.DataFrame, walls: pd.DataFrame) -> pd.DataFrame:
+    bad = results[results["state"] == FLOATING]
+    rows = walls["row"].to_numpy()[bad["_wall"].to_numpy()]
+    return pd.DataFrame(
+        {
+            "row": rows,
+            "wall_id": bad["wall_id"].to_numpy(),
+            "column": "height_m / base_width_m / wall_unit_weight_kn_m3",
+            "value": "",
+            "severity": "error",
+            "message": "net vertical load V ≤ 0 in the "
+            + bad["case"].astype(str)
+            + " case: uplift exceeds the weight (the wall would float); "
+            "check the dimensions and unit weights",
+        }
+    )
+
+
+def evaluate(register: pd.DataFrame, config: Config | None = None, **kwargs: object) -> Screening:
+    """Prepare and screen a register; keep problems, assumptions and the per-wall summary."""
+    config = config or Config()
+    prepared = prepare(register, config, **kwargs)  # type: ignore[arg-type]
+    if len(prepared.walls) == 0:
+        empty = pd.DataFrame({c: pd.Series(dtype=object) for c in RESULT_COLUMNS})
+        return Screening(prepared, empty, pd.DataFrame(), prepared.problems, config)
+    results = screen_prepared(prepared, config)
+    walls = summarise_walls(results, prepared.walls)
+    problems = pd.concat([prepared.problems, _floating_problems(results, prepared.walls)], ignore_index=True)
+    return Screening(prepared, results, walls, problems, config)
+
+
+def screen(register: pd.DataFrame, config: Config | None = None) -> pd.DataFrame:
+    """Screen every wall of a register in the drained, blocked and surveyed cases.
+
+    Parameters
+    ----------
+    register : pandas.DataFrame
+        One row per wall with the canonical columns of shared/inventory.md
+        (``wall_id``, ``height_m``, ``base_width_m``, ``top_width_m`` required).
+    config : Config, optional
+        Settings; the defaults of method.md when omitted.
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per wall and case with the columns of :data:`RESULT_COLUMNS`.
+        Rows of the register that fail validation are left out and listed in a
+        :class:`RejectedRowsWarning`.
+    """
+    run = evaluate(register, config)
+    errors = run.prepared.rejected_rows
+    if len(errors):
+        listing = "; ".join(
+            f"row {r.row} ({r.column}={r.value!r}): {r.message}" for r in errors.head(20).itertuples()
+        )
+        warnings.warn(
+            f"{errors['row'].nunique()} row(s) rejected: {listing}", RejectedRowsWarning, stacklevel=2
+        )
+    return run.results[list(RESULT_COLUMNS)].reset_index(drop=True)
+
+
+__all__ = ["OUTSIDE_BASE", "RESULT_COLUMNS", "Screening", "evaluate", "screen"]

@@ -1,0 +1,423 @@
+"""From a register in canonical columns to engine inputs: cast, validate, fill defaults.
+
+Everything here works on whole columns. Each problem names the row as the user
+sees it, the column as the user wrote it, the value, and what was expected.
+Errors reject the row; warnings keep it. Every blank filled by a default is
+recorded per wall with its source (method.md §7).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from screening import schema
+from screening.config import Config
+from screening.engine import ENGINE_INPUTS
+
+PROBLEM_COLUMNS = ("row", "wall_id", "column", "value", "severity", "message")
+ASSUMPTION_COLUMNS = ("wall_id", "row", "column", "value", "source")
+
+
+@dataclass(frozen=True)
+class Prepared:
+    """A register made ready for the engine.
+
+    Attributes
+    ----------
+    walls : pandas.DataFrame
+        Accepted rows, typed, blanks filled; ``row`` is the row the user sees.
+    inputs : dict of str to numpy.ndarray
+        The engine's input columns for ``walls``.
+    problems : pandas.DataFrame
+        Errors and warnings, one per row and column.
+    assumptions : pandas.DataFrame
+        Every default used, per wall.
+    n_read : int
+        Rows read from the register.
+    earlier_surveys : pandas.DataFrame
+        Accepted rows of walls surveyed more than once, other than the latest
+        survey (kept for the lean history; the latest survey is screened).
+    """
+
+    walls: pd.DataFrame
+    inputs: dict[str, np.ndarray]
+    problems: pd.DataFrame
+    assumptions: pd.DataFrame
+    n_read: int
+    earlier_surveys: pd.DataFrame
+
+    @property
+    def rejected_rows(self) -> pd.DataFrame:
+        """Error problems (the reasons rows were rejected)."""
+        return self.problems[self.problems["severity"] == "error"]
+
+
+class _Log:
+    """Collects problems and assumptions as whole-column pieces."""
+
+    def __init__(self, frame: pd.DataFrame, labels: Mapping[str, str], shown: pd.DataFrame | None):
+        self.frame = frame
+        self.labels = labels
+        self.shown = shown if shown is not None else frame.copy()
+        self.flagged: dict[str, pd.Series] = {}
+        self.problems: list[pd.DataFrame] = []
+        self.assumptions: list[pd.DataFrame] = []
+
+    def problem(
+        self,
+        mask: pd.Series,
+        column: str,
+        message: str,
+        *,
+        severity: str = "error",
+        values: pd.Series | None = None,
+    ) -> None:
+        mask = mask.fillna(False).astype(bool)
+        if not mask.any():
+            return
+        hit = self.frame.loc[mask]
+        self.flagged[column] = self.flagged.get(column, False) | mask
+        source = self.shown.get(column) if column in self.shown else values
+        if source is None:
+            source = self.frame.get(column)
+        shown = (
+            source.loc[mask].astype(object).where(source.loc[mask].notna(), "")
+            if source is not None
+            else pd.Series("", index=hit.index)
+        )
+        self.problems.append(
+            pd.DataFrame(
+                {
+                    "row": hit["row"].to_numpy(),
+                    "wall_id": hit["wall_id"].astype(object).to_numpy(),
+                    "column": self.labels.get(column, column),
+                    "value": shown.map(_show).to_numpy(),
+                    "severity": severity,
+                    "message": message,
+                }
+            )
+        )
+
+    def assume(
+        self, mask: pd.Series, column: str, value: pd.Series | float | str, source: pd.Series | str
+    ) -> None:
+        mask = mask.fillna(False).astype(bool)
+        if not mask.any():
+            return
+        hit = self.frame.loc[mask]
+        val = value.loc[mask] if isinstance(value, pd.Series) else pd.Series(value, index=hit.index)
+        src = source.loc[mask] if isinstance(source, pd.Series) else pd.Series(source, index=hit.index)
+        self.assumptions.append(
+            pd.DataFrame(
+                {
+                    "wall_id": hit["wall_id"].astype(object).to_numpy(),
+                    "row": hit["row"].to_numpy(),
+                    "column": column,
+                    "value": val.astype(object).to_numpy(),
+                    "source": src.astype(object).to_numpy(),
+                }
+            )
+        )
+
+
+def _show(value: object) -> str:
+    if isinstance(value, float) and value.is_integer():
+        return str(int(value))
+    return str(value)
+
+
+def _blank(series: pd.Series) -> pd.Series:
+    """True where a cell is empty (NaN, None or only white space)."""
+    text = series.astype(object).where(series.notna(), None)
+    return text.isna() | text.map(lambda v: isinstance(v, str) and not v.strip())
+
+
+def cast(frame: pd.DataFrame, config: Config, log: _Log) -> pd.DataFrame:
+    """Cast every canonical column to its fixed type, logging cells that do not fit."""
+    out = pd.DataFrame(index=frame.index)
+    out["row"] = frame["row"]
+    for col in schema.COLUMNS:
+        raw = frame[col] if col in frame else pd.Series(np.nan, index=frame.index)
+        blank = _blank(raw)
+        if col in schema.NUMERIC:
+            numeric = pd.to_numeric(raw.where(~blank), errors="coerce").astype(float)
+            log.problem(~blank & numeric.isna(), col, "expected a number", values=raw)
+            out[col] = numeric
+        elif col in schema.CODED:
+            allowed = schema.CODED[col] or tuple(config.consequence_weight)
+            text = raw.where(~blank).astype(object)
+            code = text.map(lambda v: str(v).strip().lower().replace(" ", "_"), na_action="ignore")
+            bad = code.notna() & ~code.isin(allowed)
+            log.problem(bad, col, f"expected one of {', '.join(allowed)}", values=raw)
+            out[col] = code.where(~bad).astype(object)
+        elif col in schema.DATES:
+            dates = pd.to_datetime(raw.where(~blank), errors="coerce", format="mixed")
+            log.problem(~blank & dates.isna(), col, "expected a date (YYYY-MM-DD)", values=raw)
+            out[col] = dates
+        else:
+            out[col] = raw.where(~blank).astype(object).map(lambda v: str(v).strip(), na_action="ignore")
+    return out
+
+
+def _range(
+    log: _Log,
+    w: pd.DataFrame,
+    col: str,
+    lo: float | None,
+    hi: float | None,
+    expected: str,
+    *,
+    lo_open: bool = False,
+    severity: str = "error",
+) -> None:
+    v = w[col]
+    bad = pd.Series(False, index=w.index)
+    if lo is not None:
+        bad |= (v <= lo) if lo_open else (v < lo)
+    if hi is not None:
+        bad |= v > hi
+    log.problem(bad & v.notna(), col, expected, severity=severity)
+
+
+def validate(w: pd.DataFrame, config: Config, log: _Log) -> None:
+    """Required values, ranges and physical consistency, whole columns at a time."""
+    for col in schema.REQUIRED:
+        already = log.flagged.get(col, pd.Series(False, index=w.index))
+        log.problem(w[col].isna() & ~already, col, "a value is required")
+    dup = w["wall_id"].notna() & w.duplicated(["wall_id", "survey_date"], keep="first")
+    log.problem(dup, "wall_id", "wall_id must be unique within one survey date")
+
+    _range(
+        log,
+        w,
+        "height_m",
+        0.3,
+        None,
+        "expected a height of at least 0.3 m (metres entered where millimetres are expected?)",
+    )
+    _range(
+        log,
+        w,
+        "height_m",
+        None,
+        25,
+        "a wall over 25 m high: millimetres entered as metres?",
+        severity="warning",
+    )
+    _range(log, w, "base_width_m", 0, None, "expected a base width above 0 m", lo_open=True)
+    _range(log, w, "top_width_m", 0, None, "expected a top width above 0 m", lo_open=True)
+    _range(log, w, "front_batter_m", 0, None, "expected a front batter of 0 m or more")
+    _range(log, w, "retained_height_m", 0, None, "expected a retained height of 0 m or more")
+    _range(log, w, "lean_deg", -30, 30, "expected a lean between -30° and 30°")
+    _range(log, w, "lean_deg", -10, 10, "lean over 10°: check the survey", severity="warning")
+    for col in ("wall_unit_weight_kn_m3", "soil_unit_weight_kn_m3", "soil_saturated_unit_weight_kn_m3"):
+        _range(log, w, col, 10, 30, "expected a unit weight between 10 and 30 kN/m³")
+    _range(log, w, "soil_friction_deg", 0, 50, "expected an angle above 0° and up to 50°", lo_open=True)
+    _range(log, w, "wall_friction_deg", 0, 45, "expected an angle between 0° and 45°")
+    _range(log, w, "backfill_slope_deg", -45, 45, "expected a slope between -45° and 45°")
+    _range(log, w, "surcharge_kpa", 0, 500, "expected a surcharge between 0 and 500 kPa")
+    for col in ("base_friction_deg", "joint_friction_deg"):
+        _range(log, w, col, 0, 50, "expected an angle above 0° and up to 50°", lo_open=True)
+    _range(
+        log,
+        w,
+        "allowable_bearing_kpa",
+        0,
+        None,
+        "expected an allowable bearing pressure above 0 kPa",
+        lo_open=True,
+    )
+    _range(log, w, "water_height_m", 0, None, "expected a water height of 0 m or more")
+    _range(log, w, "condition_rating", 1, 5, "expected a condition rating from 1 to 5")
+    log.problem(
+        w["condition_rating"].notna() & (w["condition_rating"] % 1 != 0),
+        "condition_rating",
+        "expected a whole number from 1 to 5",
+    )
+    lat, lon = w["lat"], w["lon"]
+    swapped = (lat.abs() > 90) & (lat.abs() <= 180) & (lon.abs() <= 90)
+    log.problem(swapped, "lat", "latitude beyond ±90 but a valid longitude: lat and lon swapped?")
+    log.problem(lat.abs().gt(90) & ~swapped, "lat", "expected a latitude between -90 and 90")
+    _range(log, w, "lon", -180, 180, "expected a longitude between -180 and 180")
+
+
+def fill_defaults(w: pd.DataFrame, config: Config, log: _Log) -> pd.DataFrame:
+    """Fill blanks from method.md §7 and record each default used."""
+    w = w.copy()
+
+    def simple(col: str) -> None:
+        d = getattr(config, col)
+        blank = w[col].isna()
+        log.assume(blank, col, d.value, d.source)
+        w[col] = w[col].fillna(d.value)
+
+    material_blank = w["material"].isna() & w["wall_unit_weight_kn_m3"].isna()
+    log.assume(material_blank, "material", config.material_default, "config material_default: not recorded")
+    material = w["material"].fillna(config.material_default)
+    weights = {k: d.value for k, d in config.wall_unit_weight_kn_m3.items()}
+    sources = {k: d.source for k, d in config.wall_unit_weight_kn_m3.items()}
+    blank = w["wall_unit_weight_kn_m3"].isna()
+    log.assume(blank, "wall_unit_weight_kn_m3", material.map(weights), material.map(sources))
+    w["wall_unit_weight_kn_m3"] = w["wall_unit_weight_kn_m3"].fillna(material.map(weights).astype(float))
+
+    blank = w["retained_height_m"].isna()
+    log.assume(
+        blank,
+        "retained_height_m",
+        w["height_m"],
+        "not recorded: retained to the full height (shared/inventory.md)",
+    )
+    w["retained_height_m"] = w["retained_height_m"].fillna(w["height_m"])
+    for col in (
+        "front_batter_m",
+        "lean_deg",
+        "soil_unit_weight_kn_m3",
+        "soil_saturated_unit_weight_kn_m3",
+        "soil_friction_deg",
+        "wall_friction_deg",
+        "backfill_slope_deg",
+        "surcharge_kpa",
+        "joint_friction_deg",
+    ):
+        simple(col)
+
+    needs_foundation = w["foundation"].isna() & (
+        w["allowable_bearing_kpa"].isna() | w["base_friction_deg"].isna()
+    )
+    log.assume(
+        needs_foundation, "foundation", config.foundation_default, "config foundation_default: not recorded"
+    )
+    foundation = w["foundation"].fillna(config.foundation_default)
+    for col, table in (
+        ("allowable_bearing_kpa", config.foundation_allowable_bearing_kpa),
+        ("base_friction_deg", config.foundation_base_friction_deg),
+    ):
+        blank = w[col].isna()
+        values = foundation.map(dict(table)).astype(float)
+        log.assume(blank, col, values, config.foundation_source + ", " + foundation)
+        w[col] = w[col].fillna(values)
+
+    blank = w["consequence"].isna()
+    log.assume(blank, "consequence", config.consequence_default, "config consequence_default: not recorded")
+    w["consequence"] = w["consequence"].fillna(config.consequence_default)
+    blank = w["condition_rating"].isna()
+    log.assume(blank, "condition_rating", config.condition_default.value, config.condition_default.source)
+    w["condition_rating"] = w["condition_rating"].fillna(config.condition_default.value)
+
+    # the surveyed case: measured water if recorded, else the drainage state
+    no_water = w["water_height_m"].isna()
+    drain_blank = w["drainage"].isna() & no_water
+    log.assume(drain_blank, "drainage", "unknown", "not recorded: drainage unknown")
+    drainage = w["drainage"].fillna("unknown")
+    fraction = drainage.map(dict(config.drainage_water_fraction)).astype(float)
+    surveyed = w["water_height_m"].fillna(fraction * w["retained_height_m"])
+    log.assume(
+        no_water,
+        "surveyed water_height_m",
+        surveyed,
+        "drainage '"
+        + drainage
+        + "': "
+        + fraction.map("{:g}".format)
+        + " × retained height (config drainage_water_fraction)",
+    )
+    w["surveyed_water_height_m"] = surveyed
+    return w
+
+
+def check_geometry(w: pd.DataFrame, log: _Log) -> None:
+    """Physical consistency once blanks are filled (method.md §1, §2, §5)."""
+    back = w["base_width_m"] - w["front_batter_m"] - w["top_width_m"]
+    log.problem(
+        back < -1e-9,
+        "base_width_m",
+        "base narrower than top width plus front batter: the back face would overhang the heel (b < 0)",
+    )
+    log.problem(
+        w["retained_height_m"] > w["height_m"] + 1e-9,
+        "retained_height_m",
+        "retained height above the wall height",
+    )
+    log.problem(
+        w["water_height_m"] > w["retained_height_m"] + 1e-9,
+        "water_height_m",
+        "water height above the retained height",
+    )
+    crack = w["crack_height_m"]
+    log.problem(
+        crack.notna() & ((crack <= 0) | (crack >= w["height_m"])),
+        "crack_height_m",
+        "expected a crack height above 0 and below the wall height",
+    )
+    log.problem(
+        w["backfill_slope_deg"] >= w["soil_friction_deg"],
+        "backfill_slope_deg",
+        "backfill slope must be less than the soil friction angle (no active wedge otherwise)",
+    )
+    log.problem(
+        w["soil_saturated_unit_weight_kn_m3"] <= 9.81,
+        "soil_saturated_unit_weight_kn_m3",
+        "saturated unit weight must exceed that of water (9.81 kN/m³)",
+    )
+
+
+def prepare(
+    register: pd.DataFrame,
+    config: Config | None = None,
+    *,
+    labels: Mapping[str, str] | None = None,
+    shown: pd.DataFrame | None = None,
+) -> Prepared:
+    """Cast, validate and fill a register in canonical columns.
+
+    Parameters
+    ----------
+    register : pandas.DataFrame
+        One row per wall; canonical column names. A ``row`` column, if present,
+        gives the row number the user sees; otherwise the position + 2 (a header
+        row, counting from 1) is used.
+    config : Config, optional
+    labels : mapping, optional
+        Canonical name → the user's own header, for messages.
+    shown : pandas.DataFrame, optional
+        The cells as the user wrote them (before unit conversion), for messages.
+    """
+    config = config or Config()
+    frame = register.reset_index(drop=True).copy()
+    if "row" not in frame:
+        frame["row"] = np.arange(len(frame)) + 2
+    if "wall_id" not in frame:
+        frame["wall_id"] = pd.Series(np.nan, index=frame.index, dtype=object)
+    if shown is not None:
+        shown = shown.reset_index(drop=True)
+    log = _Log(frame, labels or {}, shown)
+    typed = cast(frame, config, log)
+    log.frame = typed
+    validate(typed, config, log)
+    filled = fill_defaults(typed, config, log)
+    log.frame = filled
+    check_geometry(filled, log)
+
+    problems = _concat(log.problems, PROBLEM_COLUMNS)
+    problems = problems.sort_values(["row", "severity"], kind="stable").reset_index(drop=True)
+    bad_rows = set(problems.loc[problems["severity"] == "error", "row"])
+    accepted = filled[~filled["row"].isin(bad_rows)]
+    latest = accepted.sort_values("survey_date", kind="stable", na_position="first")
+    latest = latest.drop_duplicates("wall_id", keep="last").sort_values("row")
+    earlier = accepted[~accepted["row"].isin(latest["row"])].reset_index(drop=True)
+    accepted = latest.reset_index(drop=True)
+    assumptions = _concat(log.assumptions, ASSUMPTION_COLUMNS)
+    assumptions = assumptions[assumptions["row"].isin(set(accepted["row"]))]
+    assumptions = assumptions.sort_values(["row"], kind="stable").reset_index(drop=True)
+    inputs = {c: accepted[c].to_numpy(dtype=float) for c in ENGINE_INPUTS}
+    return Prepared(accepted, inputs, problems, assumptions, len(frame), earlier)
+
+
+def _concat(pieces: list[pd.DataFrame], columns: tuple[str, ...]) -> pd.DataFrame:
+    if not pieces:
+        return pd.DataFrame({c: pd.Series(dtype=object) for c in columns})
+    return pd.concat(pieces, ignore_index=True)[list(columns)]
