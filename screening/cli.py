@@ -12,6 +12,7 @@ from typing import Annotated
 
 import typer
 from rich.console import Console
+from rich.markup import escape
 from rich.table import Table
 
 from screening import __version__
@@ -75,7 +76,13 @@ def _print_problems(job: JobResult, limit: int = 15) -> None:
     for p in problems.head(limit).itertuples():
         style = "red" if p.severity == "error" else "yellow"
         table.add_row(
-            str(p.row), str(p.wall_id), str(p.column), str(p.value), p.severity, p.message, style=style
+            str(p.row),
+            escape(str(p.wall_id)),
+            escape(str(p.column)),
+            escape(str(p.value)),
+            p.severity,
+            escape(str(p.message)),
+            style=style,
         )
     console.print(table)
     if len(problems) > limit:
@@ -83,34 +90,70 @@ def _print_problems(job: JobResult, limit: int = 15) -> None:
 
 
 def _print_summary(job: JobResult, top: int = 10) -> None:
+    from screening.priority import BAND_LABELS, BANDS
+
     run = job.screening
     walls = job.walls
-    n_read = run.prepared.n_read
     console.print(
-        f"[bold]{job.info.input_file}[/]: {n_read} rows read, {len(walls)} walls screened in 3 cases, "
-        f"{run.n_rejected} rows rejected, "
+        f"[bold]{job.info.input_file}[/]: {run.prepared.n_read} rows read, {len(walls)} walls screened "
+        f"in 3 cases, {run.n_rejected} rows rejected, "
         f"{int((run.problems['severity'] == 'warning').sum())} warnings"
     )
     if len(walls):
-        counts = walls["state"].value_counts()
-        line = ", ".join(f"{k.replace('_', ' ')}: {v}" for k, v in counts.items())
-        console.print(f"Worst case per wall: {line}")
-        table = Table(title=f"Least margin first (top {min(top, len(walls))})", title_justify="left")
-        for col in ("rank", "wall_id", "worst case", "governing check", "utilisation", "state"):
-            table.add_column(col)
+        bands = walls["priority_band"].value_counts()
+        console.print(
+            "Priority bands: " + ", ".join(f"{BAND_LABELS[b]} {int(bands.get(b, 0))}" for b in BANDS)
+        )
+        checks = walls["governing_check"].value_counts()
+        console.print(
+            "Governing check (worst case): "
+            + ", ".join(f"{k.replace('_', ' ')} {v}" for k, v in checks.items())
+        )
+        unlocated = int((~walls["located"]).sum())
+        if unlocated:
+            console.print(f"{unlocated} wall(s) have no location: screened, listed, not mapped.")
+        table = Table(title=f"Inspect first (top {min(top, len(walls))})", title_justify="left")
+        for col in ("rank", "wall", "band", "score", "utilisation", "reason"):
+            table.add_column(col, overflow="fold")
         for w in walls.head(top).itertuples():
             table.add_row(
                 str(w.rank),
-                str(w.wall_id),
-                w.worst_case,
-                w.governing_check,
-                f"{w.utilisation:.2f}",
-                w.state.replace("_", " "),
+                escape(str(w.wall_id)),
+                BAND_LABELS[str(w.priority_band)],
+                f"{w.priority_score:.1f}",
+                "∞" if w.utilisation == float("inf") else f"{w.utilisation:.2f}",
+                escape(str(w.reason)),
             )
         console.print(table)
     for name, path in job.outputs.items():
         console.print(f"  {name:<12} {path}")
     console.print(f"[dim]{CAUTION}[/]")
+
+
+def _screen_with_progress(
+    register: Path, out: Path | None, mapping: Path | None, sheet: str | None, config: Path | None
+) -> JobResult:
+    """Screen and write; a progress bar for registers large enough to wait for."""
+    from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
+
+    cfg = load_config(config)
+    big = register.exists() and register.stat().st_size > 2_000_000
+    with Progress(
+        SpinnerColumn(),
+        TextColumn("{task.description}"),
+        TimeElapsedColumn(),
+        console=console,
+        disable=not big,
+        transient=True,
+    ) as bar:
+        task = bar.add_task("reading and screening", total=None)
+        job = screen_file(register, mapping=mapping, sheet=sheet, config=cfg)
+        if len(job.walls) == 0:
+            _print_problems(job)
+            raise ScreeningError(f"{register}: no row could be screened")
+        if out is not None:
+            write_outputs(job, out, progress=lambda name: bar.update(task, description=f"writing {name}"))
+    return job
 
 
 @app.command()
@@ -123,12 +166,7 @@ def run(
 ) -> None:
     """Screen every wall in the drained, blocked and surveyed cases and write the outputs."""
     try:
-        cfg = load_config(config)
-        job = screen_file(register, mapping=mapping, sheet=sheet, config=cfg)
-        if len(job.walls) == 0:
-            _print_problems(job)
-            raise ScreeningError(f"{register}: no row could be screened")
-        write_outputs(job, out)
+        job = _screen_with_progress(register, out, mapping, sheet, config)
     except ScreeningError as exc:
         raise _fail(exc) from None
     _print_problems(job)

@@ -17,6 +17,7 @@ from types import MappingProxyType
 from typing import Any
 
 from screening.errors import ConfigError
+from screening.priority import PrioritySettings
 
 GAMMA_W_KN_M3 = 9.81
 """Unit weight of water [kN/m³]."""
@@ -122,6 +123,7 @@ class Config:
     )
     consequence_default: str = "road"
     condition_default: Default = Default(3.0, "not recorded: middle of the 1-5 scale assumed")
+    priority: PrioritySettings = field(default_factory=PrioritySettings)
     # --- run
     chunk_size: int = 200_000
     """Walls screened per pass; larger registers are processed in chunks."""
@@ -130,6 +132,8 @@ class Config:
         """Plain nested dict of every setting (for the settings sheet and the history)."""
 
         def plain(value: Any) -> Any:
+            if dataclasses.is_dataclass(value) and not isinstance(value, (Default, type)):
+                return {f.name: plain(getattr(value, f.name)) for f in dataclasses.fields(value)}
             if isinstance(value, Default):
                 return {"value": value.value, "source": value.source}
             if isinstance(value, Mapping):
@@ -162,7 +166,19 @@ def load_config(path: str | Path | None) -> Config:
                 f"{path}: unknown setting {key!r}; known settings are {', '.join(sorted(known))}"
             )
         current = getattr(base, key)
-        if isinstance(current, Default):
+        if isinstance(current, PrioritySettings):
+            if not isinstance(value, Mapping):
+                raise ConfigError(f"{path}: setting {key!r} must be a table")
+            names = {f.name for f in dataclasses.fields(current)}
+            unknown = set(value) - names
+            if unknown:
+                raise ConfigError(f"{path}: unknown [priority] setting(s) {sorted(unknown)}")
+            sub: dict[str, Any] = {
+                k: (_frozen({**current.band_thresholds, **v}) if k == "band_thresholds" else float(v))
+                for k, v in value.items()
+            }
+            changes[key] = dataclasses.replace(current, **sub)
+        elif isinstance(current, Default):
             if isinstance(value, Mapping):
                 changes[key] = Default(float(value["value"]), str(value.get("source", path.name)))
             else:

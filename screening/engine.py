@@ -171,7 +171,9 @@ def run_cases(inputs: Mapping[str, NDArray[np.float64]], config: Config) -> dict
     waters = case_water_heights({k: np.asarray(inputs[k], dtype=float) for k in ENGINE_INPUTS})
     hw = np.concatenate([waters[c] for c in CASES])
 
-    out: dict[str, NDArray] = section_checks(p, hw, uplift=config.uplift, friction_deg=p["base_friction_deg"], config=config)
+    out: dict[str, NDArray] = section_checks(
+        p, hw, uplift=config.uplift, friction_deg=p["base_friction_deg"], config=config
+    )
     toe, heel, state = stability.base_pressure(
         out["vertical_kn_m"], out["resultant_from_toe_m"], p["base_width_m"]
     )

@@ -101,16 +101,53 @@ def screen_file(
     return JobResult(run, loaded, info, walls, geometry)
 
 
-def write_outputs(job: JobResult, out_dir: str | Path) -> dict[str, Path]:
-    """Write the CSV outputs of a run into ``out_dir`` (atomically, file by file)."""
+def provenance(job: JobResult) -> list[tuple[str, object]]:
+    """Where a run came from, for the settings sheet, the map and the history."""
+    info = job.info
+    return [
+        ("tool", f"wallscreen {info.tool_version}"),
+        ("run time (UTC)", info.run_time),
+        ("input file", info.input_file),
+        ("input SHA-256", info.input_sha256),
+        ("sheet", info.sheet or ""),
+        ("mapping file", info.mapping_file or "(none: canonical headers)"),
+        ("rows read", job.screening.prepared.n_read),
+        ("walls screened", len(job.walls)),
+        ("rows rejected", job.n_rejected),
+        ("walls without a location", int((~job.walls["located"]).sum()) if len(job.walls) else 0),
+        ("reader notes", "; ".join(info.notes)),
+    ]
+
+
+def write_outputs(
+    job: JobResult, out_dir: str | Path, *, progress: Progress | None = None
+) -> dict[str, Path]:
+    """Write every output of a run into ``out_dir``, each file atomically."""
+    from screening.io.gis import write_geopackage
+    from screening.report import write_workbook
+
+    step = progress or (lambda _name: None)
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     run = job.screening
+    step("CSV files")
     outputs = {
         "results": write_csv(run.results.reindex(columns=list(RESULT_COLUMNS)), out / "results.csv"),
         "walls": write_csv(job.walls, out / "walls.csv"),
         "problems": write_csv(run.problems, out / "problems.csv"),
         "assumptions": write_csv(run.prepared.assumptions, out / "assumptions.csv"),
     }
+    step("workbook")
+    outputs["workbook"] = write_workbook(
+        out / "report.xlsx",
+        walls=job.walls,
+        results=run.results.reindex(columns=list(RESULT_COLUMNS)),
+        problems=run.problems,
+        assumptions=run.prepared.assumptions,
+        settings=job.info.config.to_dict(),
+        provenance=provenance(job),
+    )
+    step("GeoPackage")
+    outputs["geopackage"] = write_geopackage(job.walls, job.geometry, out / "walls.gpkg")
     job.outputs.update(outputs)
     return outputs

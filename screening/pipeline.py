@@ -12,6 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from screening import priority
 from screening.config import CASES, Config
 from screening.engine import run_cases
 from screening.prepare import Prepared, prepare
@@ -120,12 +121,43 @@ def summarise_walls(results: pd.DataFrame, walls: pd.DataFrame) -> pd.DataFrame:
         summary[f"utilisation_{case}"] = wide[case].to_numpy()
     summary["outside_middle_third"] = outside.reindex(wide.index).to_numpy()
     summary["over_allowable_bearing"] = over.reindex(wide.index).to_numpy()
-    # least margin first; among walls whose resultant leaves the base (margin -inf)
-    # the one whose resultant lies further out comes first
-    summary["_far"] = worst["middle_third_utilisation"].to_numpy()
-    summary = summary.sort_values(["margin", "_far"], ascending=[True, False], kind="stable")
-    summary["rank"] = np.arange(1, len(summary) + 1)
-    return summary.drop(columns="_far").reset_index(drop=True)
+    return summary
+
+
+def add_priority(
+    summary: pd.DataFrame, walls: pd.DataFrame, results: pd.DataFrame, config: Config
+) -> pd.DataFrame:
+    """Priority score, band and reason for each wall; rank follows the priority (1 = first).
+
+    Ties in score are broken by the least margin, then by how far outside the base
+    the resultant lies.
+    """
+    s = config.priority
+    inputs = walls.iloc[summary.index.to_numpy()].reset_index(drop=True)
+    out = summary.reset_index(drop=True)
+    like = priority.likelihood(
+        out["utilisation_surveyed"],
+        out["utilisation_blocked"],
+        inputs["condition_rating"],
+        inputs["lean_deg"],
+        inputs["crack_height_m"].notna(),
+        s,
+        inputs["lean_rate_deg_per_year"] if "lean_rate_deg_per_year" in inputs else None,
+    )
+    cons = priority.consequence(inputs["consequence"], inputs["height_m"], config.consequence_weight, s)
+    out["priority_score"] = np.round(100.0 * like * cons, 2)
+    out["priority_band"] = priority.band(out["priority_score"], s)
+    out["reason"] = priority.reasons(inputs, results).to_numpy()
+    for col in ("condition_rating", "consequence", "height_m", "lean_deg", "crack_height_m"):
+        out[col] = inputs[col].to_numpy()
+    out["_far"] = (
+        results.set_index(["wall_id", "case"])["middle_third_utilisation"]
+        .reindex(list(zip(out["wall_id"], out["worst_case"], strict=True)))
+        .to_numpy()
+    )
+    out = out.sort_values(["priority_score", "margin", "_far"], ascending=[False, True, False], kind="stable")
+    out["rank"] = np.arange(1, len(out) + 1)
+    return out.drop(columns="_far").reset_index(drop=True)
 
 
 def _floating_problems(results: pd.DataFrame, walls: pd.DataFrame) -> pd.DataFrame:
@@ -154,7 +186,7 @@ def evaluate(register: pd.DataFrame, config: Config | None = None, **kwargs: obj
         empty = pd.DataFrame({c: pd.Series(dtype=object) for c in RESULT_COLUMNS})
         return Screening(prepared, empty, pd.DataFrame(), prepared.problems, config)
     results = screen_prepared(prepared, config)
-    walls = summarise_walls(results, prepared.walls)
+    walls = add_priority(summarise_walls(results, prepared.walls), prepared.walls, results, config)
     problems = pd.concat([prepared.problems, _floating_problems(results, prepared.walls)], ignore_index=True)
     return Screening(prepared, results, walls, problems, config)
 

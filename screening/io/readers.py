@@ -215,8 +215,12 @@ def _read_spreadsheet(path: Path, sheet: str | int | None, known: set[str]) -> R
         chosen = sheet
     else:
         raise RegisterError(f"{path}: no sheet named {sheet!r}; the sheets are {names}")
-    grid = book.parse(chosen, header=None, dtype=object)
-    book.close()
+    try:
+        grid = pd.read_excel(book, sheet_name=chosen, header=None, dtype=object)
+    except Exception as exc:  # a damaged sheet inside a readable workbook
+        raise RegisterError(f"{path}: sheet {chosen!r} could not be read ({exc})") from exc
+    finally:
+        book.close()
     if grid.empty:
         raise RegisterError(f"{path}: sheet {chosen!r} is empty")
     header = _find_header(grid, known, path)

@@ -19,11 +19,15 @@ def atomic_path(target: str | Path) -> Iterator[Path]:
     """Yield a temporary path in the target's folder; rename it over the target on success."""
     target = Path(target)
     target.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=target.parent)
+    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=f".part{target.suffix}", dir=target.parent)
     os.close(fd)
     tmp_path = Path(tmp)
     try:
         yield tmp_path
+        # mkstemp makes the file private; give it the permissions of a normal new file
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp_path, 0o666 & ~umask)
         os.replace(tmp_path, target)
     finally:
         if tmp_path.exists():

@@ -1,0 +1,187 @@
+"""Inspection priority: which walls to look at first, and why.
+
+Following the idea of geotechnical asset management guidance (risk as the
+product of the likelihood of poor performance and its consequence; NCHRP
+Report 903, *Geotechnical Asset Management for Transportation Agencies*,
+2019), in our own terms:
+
+- **likelihood** (0–1) = weighted sum of
+  - the structural index 1 − exp(−u / u_scale), where u blends the surveyed
+    case's utilisation (today's evidence) with the blocked case's (the
+    plausible worst); infinite utilisation gives 1;
+  - the surveyed condition rating, (rating − 1)/4;
+  - the outward lean, lean / lean_full (capped at 1);
+  - a known crack (1 if recorded);
+- **consequence** (0–1) = class weight / the largest weight × (½ + ½·min(H/H_full, 1)):
+  what a failure would hit and how high the wall is;
+- **priority score** = 100 × likelihood × consequence.
+
+Every term is non-decreasing in its input and the weights are non-negative,
+so a worse utilisation, a worse condition, more lean or a higher consequence
+never lowers a wall's priority (property-tested). Bands cut the score at
+configurable thresholds.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from types import MappingProxyType
+
+import numpy as np
+import pandas as pd
+from numpy.typing import ArrayLike, NDArray
+
+FloatArray = NDArray[np.float64]
+
+BANDS = ("inspect_first", "inspect_soon", "routine", "low_concern")
+BAND_LABELS = {
+    "inspect_first": "Inspect first",
+    "inspect_soon": "Inspect soon",
+    "routine": "Routine inspection",
+    "low_concern": "Low concern",
+}
+
+
+@dataclass(frozen=True)
+class PrioritySettings:
+    """Weights and thresholds of the priority score (documented in the README)."""
+
+    weight_structural: float = 0.5
+    weight_condition: float = 0.25
+    weight_lean: float = 0.15
+    weight_crack: float = 0.10
+    weight_surveyed_case: float = 0.6
+    """Share of the surveyed case in the blended utilisation; the blocked case has the rest."""
+    utilisation_scale: float = 1.5
+    lean_full_deg: float = 5.0
+    lean_rate_full_deg_per_year: float = 0.5
+    weight_lean_rate: float = 0.0
+    """Weight of the measured lean rate (used once a lean history exists)."""
+    height_full_m: float = 6.0
+    band_thresholds: Mapping[str, float] = field(
+        default_factory=lambda: MappingProxyType(
+            {"inspect_first": 40.0, "inspect_soon": 25.0, "routine": 12.0}
+        )
+    )
+
+
+def structural_index(
+    utilisation_surveyed: ArrayLike, utilisation_blocked: ArrayLike, settings: PrioritySettings
+) -> FloatArray:
+    """1 − exp(−u/scale) of the blended utilisation; 1 for an infinite utilisation."""
+    us = np.nan_to_num(np.asarray(utilisation_surveyed, dtype=float), nan=0.0, posinf=np.inf)
+    ub = np.nan_to_num(np.asarray(utilisation_blocked, dtype=float), nan=0.0, posinf=np.inf)
+    w = settings.weight_surveyed_case
+    with np.errstate(invalid="ignore"):
+        blended = w * us + (1 - w) * ub
+    return 1.0 - np.exp(-np.clip(blended, 0.0, None) / settings.utilisation_scale)
+
+
+def likelihood(
+    utilisation_surveyed: ArrayLike,
+    utilisation_blocked: ArrayLike,
+    condition_rating: ArrayLike,
+    lean_deg: ArrayLike,
+    cracked: ArrayLike,
+    settings: PrioritySettings,
+    lean_rate_deg_per_year: ArrayLike | None = None,
+) -> FloatArray:
+    """Likelihood of poor performance on a 0–1 scale (see the module docstring)."""
+    s = settings
+    cond = np.clip((np.asarray(condition_rating, dtype=float) - 1.0) / 4.0, 0.0, 1.0)
+    lean = np.clip(np.asarray(lean_deg, dtype=float) / s.lean_full_deg, 0.0, 1.0)
+    crack = np.asarray(cracked, dtype=float)
+    total = s.weight_structural + s.weight_condition + s.weight_lean + s.weight_crack
+    value = (
+        s.weight_structural * structural_index(utilisation_surveyed, utilisation_blocked, s)
+        + s.weight_condition * cond
+        + s.weight_lean * lean
+        + s.weight_crack * crack
+    )
+    if lean_rate_deg_per_year is not None and s.weight_lean_rate > 0:
+        rate = np.nan_to_num(np.asarray(lean_rate_deg_per_year, dtype=float), nan=0.0)
+        value = value + s.weight_lean_rate * np.clip(rate / s.lean_rate_full_deg_per_year, 0.0, 1.0)
+        total += s.weight_lean_rate
+    return value / total
+
+
+def consequence(
+    consequence_class: ArrayLike,
+    height_m: ArrayLike,
+    class_weight: Mapping[str, float],
+    settings: PrioritySettings,
+) -> FloatArray:
+    """Consequence of failure on a 0–1 scale: what lies below and how high the wall is."""
+    classes = pd.Series(np.asarray(consequence_class, dtype=object))
+    weight = classes.map(dict(class_weight)).astype(float).to_numpy() / max(class_weight.values())
+    height = np.clip(np.asarray(height_m, dtype=float) / settings.height_full_m, 0.0, 1.0)
+    return weight * (0.5 + 0.5 * height)
+
+
+def band(score: ArrayLike, settings: PrioritySettings) -> NDArray[np.str_]:
+    """Priority band of each score (thresholds from the settings)."""
+    s = np.asarray(score, dtype=float)
+    t = settings.band_thresholds
+    return np.select(
+        [s >= t["inspect_first"], s >= t["inspect_soon"], s >= t["routine"]],
+        list(BANDS[:3]),
+        BANDS[3],
+    )
+
+
+def _fmt(values: pd.Series, spec: str) -> pd.Series:
+    return values.map(lambda v: "∞" if np.isinf(v) else format(v, spec))
+
+
+_CHECK_WORDS = {
+    "middle_third": "the resultant leaves the middle third",
+    "bearing": "the toe pressure exceeds the allowable",
+    "sliding": "sliding resistance is short",
+    "overturning": "the overturning margin is short",
+    "crack_middle_third": "above the crack the resultant leaves the middle third",
+    "crack_sliding": "sliding on the crack is short",
+    "crack_overturning": "overturning about the crack is short",
+    "vertical_load": "uplift exceeds the weight",
+}
+
+
+def reasons(walls: pd.DataFrame, results: pd.DataFrame) -> pd.Series:
+    """A one-line reason in plain words for each wall, built column-wise.
+
+    ``walls`` needs ``wall_id``, ``condition_rating``, ``lean_deg``, ``crack_height_m``,
+    ``consequence``, ``height_m``; ``results`` the long results.
+    """
+    wide = results.set_index(["wall_id", "case"])
+    idx = walls["wall_id"]
+    parts: list[pd.Series] = []
+    for case, words in (("surveyed", "as surveyed"), ("blocked", "with drains blocked")):
+        r = wide.xs(case, level="case").reindex(idx)
+        util = r["utilisation"].reset_index(drop=True)
+        check = r["governing_check"].reset_index(drop=True).map(_CHECK_WORDS).fillna("")
+        state = r["state"].reset_index(drop=True)
+        check = check.where(state != "resultant_outside_base", "the resultant falls outside the base")
+        text = words + " " + check + " (utilisation " + _fmt(util, ".2f") + ")"
+        parts.append(text.where(util > 1, ""))
+    # say the blocked case only where it adds to the surveyed one
+    surveyed_fail = parts[0] != ""
+    same = parts[1].str.replace("with drains blocked", "", regex=False) == parts[0].str.replace(
+        "as surveyed", "", regex=False
+    )
+    parts[1] = parts[1].where(~(surveyed_fail & same), "")
+    w = walls.reset_index(drop=True)
+    cond = "condition " + w["condition_rating"].map(lambda v: f"{v:.0f}")
+    parts.append(cond.where(w["condition_rating"] >= 3, ""))
+    lean = w["lean_deg"]
+    parts.append(("lean " + lean.map(lambda v: f"{v:.1f}") + "° outwards").where(lean >= 1.0, ""))
+    crack = w["crack_height_m"]
+    parts.append(("crack at " + crack.map(lambda v: f"{v:.1f}") + " m").where(crack.notna(), ""))
+    below = w["consequence"].astype(str).str.replace("_", " ")
+    parts.append(below + " below, " + w["height_m"].map(lambda v: f"{v:.1f}") + " m high")
+    text = pd.Series("", index=w.index)
+    for part in parts:
+        both = (text != "") & (part != "")
+        text = text + np.where(both, "; ", "") + part
+    none_fail = (parts[0] == "") & (parts[1] == "")
+    text = pd.Series(np.where(none_fail, "passes every check in every case; ", ""), index=w.index) + text
+    return text.str.slice(0, 1).str.upper() + text.str.slice(1)

@@ -1,0 +1,388 @@
+"""The workbook an owner opens: ranked summary, walls to look at first, results per case,
+rejected rows, assumed defaults, settings and the method with its cautions.
+
+Written with xlsxwriter directly, row by row in constant-memory mode. Text that
+came from the register is always written as a string cell, so a value such as
+``=HYPERLINK(...)`` can never run as a formula.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from collections.abc import Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+import xlsxwriter
+from xlsxwriter.worksheet import Worksheet
+
+from screening.io.writers import write_atomic
+from screening.priority import BAND_LABELS
+
+CAUTION = (
+    "Screening aid only. These results come from a simplified check of existing walls from "
+    "register data; a flag means 'look at this wall first', not 'this wall has failed'. Results "
+    "must be reviewed by a qualified engineer; local codes and the asset owner's standards govern."
+)
+
+BAND_COLOURS = {
+    # a colour-blind-safe sequence of our own (dark to light), shared with the map
+    "inspect_first": "#7B3294",
+    "inspect_soon": "#C2A5CF",
+    "routine": "#A6DBA0",
+    "low_concern": "#008837",
+}
+
+# (column, header with units, kind); kind: text (from the register: always a string),
+# word (our own words), num2, num3, int, bool
+SUMMARY_COLUMNS: Sequence[tuple[str, str, str]] = (
+    ("rank", "Rank", "int"),
+    ("wall_id", "Wall", "text"),
+    ("name", "Name", "text"),
+    ("priority_band", "Priority band", "word"),
+    ("priority_score", "Priority score (0-100)", "num2"),
+    ("reason", "Reason", "word"),
+    ("worst_case", "Worst case", "word"),
+    ("governing_check", "Governing check", "word"),
+    ("utilisation", "Utilisation (worst) [-]", "num2"),
+    ("utilisation_drained", "Utilisation drained [-]", "num2"),
+    ("utilisation_blocked", "Utilisation blocked [-]", "num2"),
+    ("utilisation_surveyed", "Utilisation surveyed [-]", "num2"),
+    ("state", "Base state (worst case)", "word"),
+    ("outside_middle_third", "Outside middle third in any case", "bool"),
+    ("over_allowable_bearing", "Over allowable bearing in any case", "bool"),
+    ("condition_rating", "Condition (1-5)", "int"),
+    ("consequence", "Below the wall", "word"),
+    ("height_m", "Height [m]", "num2"),
+    ("lean_deg", "Lean [°]", "num2"),
+    ("crack_height_m", "Crack height [m]", "num2"),
+    ("located", "On the map", "bool"),
+    ("sheet", "Calculation sheet", "link"),
+)
+
+RESULT_HEADERS = {
+    "water_height_m": "Water height [m]",
+    "weight_kn_m": "Wall weight W [kN/m]",
+    "vertical_kn_m": "V [kN/m]",
+    "horizontal_kn_m": "ΣH [kN/m]",
+    "uplift_kn_m": "Uplift U [kN/m]",
+    "restoring_moment_knm_m": "M_R [kNm/m]",
+    "overturning_moment_knm_m": "M_O [kNm/m]",
+    "resultant_from_toe_m": "x_R from toe [m]",
+    "eccentricity_m": "e [m]",
+    "toe_pressure_kpa": "Toe pressure [kPa]",
+    "heel_pressure_kpa": "Heel pressure [kPa]",
+    "crack_eccentricity_m": "Crack e [m]",
+}
+
+
+METHOD_TEXT: list[tuple[str, str]] = [
+    (
+        "What is checked",
+        "Each wall as a rigid gravity block on its base, per metre run, in three cases: "
+        "drained (no water behind the wall), blocked (water to the top of the retained ground, "
+        "EN 1997-1 §9.6) and surveyed (the recorded water level, else the drainage state).",
+    ),
+    (
+        "Earth pressure",
+        "Coulomb's active coefficient on the vertical plane through the heel (Rankine's "
+        "when wall friction and backfill slope are zero), on effective vertical stress plus the uniform "
+        "surcharge; water pressure hydrostatic and never multiplied by Ka.",
+    ),
+    (
+        "Uplift",
+        "Linear under the base from the water pressure at the heel to zero at the toe; its moment "
+        "is counted as overturning (U·2B/3 added to M_O), which gives a lower factor of safety against "
+        "overturning than subtracting it from the restoring moment.",
+    ),
+    (
+        "Lean",
+        "A measured lean rotates the wall and the soil it carries about the toe: each weight's "
+        "lever arm becomes x·cos ω − z·sin ω (a first-order treatment).",
+    ),
+    (
+        "Base pressure",
+        "Trapezoidal within the middle third, q = V/B(1 ± 6e/B); beyond it triangular with "
+        "no tension, q_max = 2V/(3x'); a resultant outside the base means the wall overturns (shown as ∞).",
+    ),
+    (
+        "Checks and utilisation",
+        "Middle third |e|/(B/6); bearing q_max/q_allow; sliding 1.5/FoS "
+        "(V·tan δ_b/ΣH, no passive resistance, no adhesion); overturning 2.0/FoS (M_R/M_O). Utilisation is "
+        "the largest; 1 or less passes; margin = 1 − utilisation.",
+    ),
+    (
+        "Known crack",
+        "The part above a recorded horizontal crack is checked as a wall of its own on the "
+        "crack plane (no uplift in the crack, joint friction), for middle third, sliding and overturning.",
+    ),
+    (
+        "Priority",
+        "Score = 100 × likelihood × consequence (the idea of NCHRP Report 903): likelihood from "
+        "the surveyed and blocked utilisations, condition, lean and cracks; consequence from what lies below "
+        "and the wall height. Bands: Inspect first ≥ 40, Inspect soon ≥ 25, Routine ≥ 12, else Low concern.",
+    ),
+    (
+        "Defaults",
+        "Blanks are filled from documented defaults (EN 1991-1-1 Annex A unit weights, BS 8002 "
+        "surcharge, presumed bearing values after BS 8004 Table 1 and NAVFAC DM 7.02); every one used is "
+        "listed per wall on the sheet 'Assumed defaults'.",
+    ),
+    (
+        "Not included",
+        "Global (deep-seated) stability, the structural capacity of the masonry, passive "
+        "resistance in front of the toe, seismic loads, and the condition of the fill itself.",
+    ),
+]
+
+
+class _Formats:
+    def __init__(self, book: xlsxwriter.Workbook):
+        self.header = book.add_format(
+            {"bold": True, "text_wrap": True, "valign": "top", "bg_color": "#E8E8E8", "border": 1}
+        )
+        self.num2 = book.add_format({"num_format": "0.00"})
+        self.num3 = book.add_format({"num_format": "0.000"})
+        self.int = book.add_format({"num_format": "0"})
+        self.wrap = book.add_format({"text_wrap": True, "valign": "top"})
+        self.title = book.add_format({"bold": True, "font_size": 14})
+        self.bold = book.add_format({"bold": True})
+        self.caution = book.add_format(
+            {"italic": True, "text_wrap": True, "font_color": "#7A1F1F", "valign": "top"}
+        )
+        self.link = book.add_format({"font_color": "#1F4E99", "underline": 1})
+        self.over = book.add_format({"bg_color": "#F4CCCC", "font_color": "#7A1F1F"})
+        self.near = book.add_format({"bg_color": "#FFF2CC"})
+        self.band = {
+            band: book.add_format(
+                {
+                    "bg_color": colour,
+                    "font_color": "#FFFFFF" if band in ("inspect_first", "low_concern") else "#000000",
+                }
+            )
+            for band, colour in BAND_COLOURS.items()
+        }
+
+
+def _cell(sheet: Worksheet, r: int, c: int, value: Any, kind: str, f: _Formats) -> None:
+    if value is None or (isinstance(value, float) and math.isnan(value)) or value is pd.NA:
+        sheet.write_blank(r, c, None)
+        return
+    if kind in ("text", "word"):
+        text = BAND_LABELS.get(value, value) if kind == "word" else value
+        sheet.write_string(r, c, str(text).replace("_", " ") if kind == "word" else str(text))
+    elif kind == "bool":
+        sheet.write_boolean(r, c, bool(value))
+    elif kind == "link":
+        sheet.write_url(r, c, f"external:{value}", f.link, string="open sheet")
+    else:
+        v = float(value)
+        if math.isinf(v):
+            sheet.write_string(r, c, "∞" if v > 0 else "-∞")
+        else:
+            sheet.write_number(r, c, v, getattr(f, kind if kind in ("num2", "num3", "int") else "num2"))
+
+
+def _table(
+    sheet: Worksheet,
+    frame: pd.DataFrame,
+    columns: Sequence[tuple[str, str, str]],
+    f: _Formats,
+    *,
+    widths: dict[str, int] | None = None,
+    start_row: int = 0,
+) -> int:
+    """Header, rows in order, frozen header and filters; returns the last row written."""
+    cols = [c for c in columns if c[0] in frame.columns]
+    sheet.set_row(start_row, 45)
+    for c, (_, header, _) in enumerate(cols):
+        sheet.write_string(start_row, c, header, f.header)
+        sheet.set_column(c, c, (widths or {}).get(cols[c][0], max(10, min(len(header) + 2, 22))))
+    arrays = [frame[name].to_numpy(dtype=object) for name, _, _ in cols]
+    kinds = [kind for _, _, kind in cols]
+    for i in range(len(frame)):
+        r = start_row + 1 + i
+        for c, kind in enumerate(kinds):
+            _cell(sheet, r, c, arrays[c][i], kind, f)
+    last = start_row + len(frame)
+    sheet.set_landscape()
+    sheet.fit_to_pages(1, 0)
+    sheet.repeat_rows(start_row)
+    sheet.freeze_panes(start_row + 1, 2 if len(cols) > 2 else 0)
+    sheet.autofilter(start_row, 0, max(last, start_row), len(cols) - 1)
+    return last
+
+
+def _colour_utilisation(
+    sheet: Worksheet, frame: pd.DataFrame, cols: Sequence[tuple[str, str, str]], f: _Formats
+) -> None:
+    names = [c[0] for c in cols if c[0] in frame.columns]
+    n = len(frame)
+    if n == 0:
+        return
+    for c, name in enumerate(names):
+        if "utilisation" in name:
+            rng = (1, c, n, c)
+            # an infinite utilisation is written as the text "∞"
+            sheet.conditional_format(
+                *rng, {"type": "text", "criteria": "containing", "value": "∞", "format": f.over}
+            )
+            sheet.conditional_format(*rng, {"type": "cell", "criteria": ">", "value": 1, "format": f.over})
+            sheet.conditional_format(
+                *rng, {"type": "cell", "criteria": "between", "minimum": 0.8, "maximum": 1, "format": f.near}
+            )
+        if name == "priority_band":
+            for band, fmt in f.band.items():
+                sheet.conditional_format(
+                    1,
+                    c,
+                    n,
+                    c,
+                    {"type": "text", "criteria": "begins with", "value": BAND_LABELS[band], "format": fmt},
+                )
+
+
+def _key_value(sheet: Worksheet, rows: list[tuple[str, Any]], f: _Formats, start: int = 0) -> int:
+    r = start
+    for key, value in rows:
+        sheet.write_string(r, 0, key, f.bold)
+        if isinstance(value, (int, float)) and not isinstance(value, bool):
+            sheet.write_number(r, 1, value)
+        else:
+            sheet.write_string(r, 1, "" if value is None else str(value))
+        r += 1
+    return r
+
+
+def write_workbook(
+    target: str | Path,
+    *,
+    walls: pd.DataFrame,
+    results: pd.DataFrame,
+    problems: pd.DataFrame,
+    assumptions: pd.DataFrame,
+    settings: dict[str, Any],
+    provenance: list[tuple[str, Any]],
+    method_text: list[tuple[str, str]] = METHOD_TEXT,
+    look_first: int = 100,
+) -> Path:
+    """Write ``report.xlsx`` atomically. See the module docstring for the sheets."""
+
+    def build(tmp: Path) -> None:
+        book = xlsxwriter.Workbook(
+            str(tmp),
+            {
+                "constant_memory": True,
+                "strings_to_formulas": False,
+                "strings_to_urls": False,
+                "nan_inf_to_errors": False,
+            },
+        )
+        f = _Formats(book)
+
+        sheet = book.add_worksheet("Ranked walls")
+        _table(sheet, walls, SUMMARY_COLUMNS, f, widths={"reason": 70, "name": 30})
+        _colour_utilisation(sheet, walls, SUMMARY_COLUMNS, f)
+
+        first = walls[walls["priority_band"] == "inspect_first"].head(look_first)
+        if len(first) < 10:
+            first = walls.head(min(look_first, max(10, len(first))))
+        sheet = book.add_worksheet("Look first")
+        sheet.write_string(
+            0, 0, f"The {len(first)} walls to look at first (of {len(walls)} screened)", f.title
+        )
+        sheet.write_string(1, 0, CAUTION, f.caution)
+        short = [
+            c
+            for c in SUMMARY_COLUMNS
+            if c[0]
+            in (
+                "rank",
+                "wall_id",
+                "name",
+                "priority_band",
+                "priority_score",
+                "reason",
+                "utilisation",
+                "sheet",
+            )
+        ]
+        _table(sheet, first, short, f, widths={"reason": 90, "name": 30}, start_row=3)
+
+        sheet = book.add_worksheet("Results by case")
+        cols = [
+            (c, RESULT_HEADERS.get(c, c.replace("_", " ")), _kind(c, results[c])) for c in results.columns
+        ]
+        _table(sheet, results, cols, f)
+        _colour_utilisation(sheet, results, cols, f)
+
+        sheet = book.add_worksheet("Rejected rows")
+        sheet.write_string(0, 0, "Errors reject the row (it was not screened); warnings keep it.", f.bold)
+        prob_cols = [
+            ("row", "Row in your file", "int"),
+            ("wall_id", "Wall", "text"),
+            ("column", "Column", "text"),
+            ("value", "Value", "text"),
+            ("severity", "Severity", "word"),
+            ("message", "What was expected", "word"),
+        ]
+        _table(sheet, problems, prob_cols, f, widths={"message": 80}, start_row=2)
+
+        sheet = book.add_worksheet("Assumed defaults")
+        ass_cols = [
+            ("wall_id", "Wall", "text"),
+            ("row", "Row in your file", "int"),
+            ("column", "Column assumed", "word"),
+            ("value", "Value used", "text"),
+            ("source", "Source", "word"),
+        ]
+        _table(sheet, assumptions, ass_cols, f, widths={"source": 90})
+
+        sheet = book.add_worksheet("Settings")
+        sheet.set_column(0, 0, 34)
+        sheet.set_column(1, 1, 100)
+        r = _key_value(sheet, provenance, f)
+        flat = _flatten(settings)
+        _key_value(sheet, flat, f, start=r + 1)
+
+        sheet = book.add_worksheet("Method and cautions")
+        sheet.set_column(0, 0, 28)
+        sheet.set_column(1, 1, 110)
+        sheet.write_string(0, 0, "Caution", f.title)
+        sheet.write_string(1, 0, CAUTION, f.caution)
+        r = 3
+        for head, text in method_text:
+            sheet.write_string(r, 0, head, f.bold)
+            sheet.write_string(r, 1, text, f.wrap)
+            r += 1
+        book.close()
+
+    return write_atomic(target, build)
+
+
+def _kind(name: str, column: pd.Series) -> str:
+    if name == "wall_id":
+        return "text"
+    if pd.api.types.is_bool_dtype(column):
+        return "bool"
+    if pd.api.types.is_numeric_dtype(column):
+        return "num3"
+    return "word"
+
+
+def _flatten(settings: dict[str, Any], prefix: str = "") -> list[tuple[str, Any]]:
+    rows: list[tuple[str, Any]] = []
+    for key, value in settings.items():
+        name = f"{prefix}{key}"
+        if isinstance(value, dict) and set(value) == {"value", "source"}:
+            rows.append((name, f"{value['value']:g}  ({value['source']})"))
+        elif isinstance(value, dict):
+            rows.extend(_flatten(value, name + "."))
+        elif isinstance(value, (np.floating, float, int)) and not isinstance(value, bool):
+            rows.append((name, float(value)))
+        else:
+            rows.append((name, json.dumps(value) if not isinstance(value, str) else value))
+    return rows
