@@ -18,7 +18,7 @@ from rich.table import Table
 from screening import __version__
 from screening.config import load_config
 from screening.errors import ScreeningError
-from screening.job import JobResult, screen_file, write_outputs
+from screening.job import JobResult, MapOptions, rerender_map, screen_file, write_outputs
 
 EXIT_OK = 0
 EXIT_SOME_REJECTED = 1
@@ -44,6 +44,18 @@ MappingOpt = Annotated[
 ]
 SheetOpt = Annotated[str | None, typer.Option(help="Sheet name or 0-based index (spreadsheets)")]
 ConfigOpt = Annotated[Path | None, typer.Option("--config", "-c", help="TOML file of settings")]
+AssetsUrlOpt = Annotated[
+    str | None,
+    typer.Option("--map-assets-url", help="Base URL of leaflet.js and leaflet.css (an intranet mirror)"),
+]
+AssetsDirOpt = Annotated[
+    Path | None,
+    typer.Option("--map-assets-dir", help="Folder with leaflet.js and leaflet.css to inline into the map"),
+]
+TilesOpt = Annotated[
+    str | None,
+    typer.Option("--map-tiles", help="Tile URL template, e.g. https://tiles.example/{z}/{x}/{y}.png"),
+]
 
 
 def _fail(exc: ScreeningError) -> typer.Exit:
@@ -131,7 +143,12 @@ def _print_summary(job: JobResult, top: int = 10) -> None:
 
 
 def _screen_with_progress(
-    register: Path, out: Path | None, mapping: Path | None, sheet: str | None, config: Path | None
+    register: Path,
+    out: Path | None,
+    mapping: Path | None,
+    sheet: str | None,
+    config: Path | None,
+    options: MapOptions | None = None,
 ) -> JobResult:
     """Screen and write; a progress bar for registers large enough to wait for."""
     from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
@@ -152,7 +169,12 @@ def _screen_with_progress(
             _print_problems(job)
             raise ScreeningError(f"{register}: no row could be screened")
         if out is not None:
-            write_outputs(job, out, progress=lambda name: bar.update(task, description=f"writing {name}"))
+            write_outputs(
+                job,
+                out,
+                progress=lambda name: bar.update(task, description=f"writing {name}"),
+                map_options=options,
+            )
     return job
 
 
@@ -163,10 +185,14 @@ def run(
     mapping: MappingOpt = None,
     sheet: SheetOpt = None,
     config: ConfigOpt = None,
+    map_assets_url: AssetsUrlOpt = None,
+    map_assets_dir: AssetsDirOpt = None,
+    map_tiles: TilesOpt = None,
 ) -> None:
     """Screen every wall in the drained, blocked and surveyed cases and write the outputs."""
+    options = MapOptions(map_assets_url, map_assets_dir, map_tiles)
     try:
-        job = _screen_with_progress(register, out, mapping, sheet, config)
+        job = _screen_with_progress(register, out, mapping, sheet, config, options)
     except ScreeningError as exc:
         raise _fail(exc) from None
     _print_problems(job)
@@ -203,6 +229,21 @@ def check(
         raise typer.Exit(EXIT_NOTHING_SCREENED)
     if job.n_rejected:
         raise typer.Exit(EXIT_SOME_REJECTED)
+
+
+@app.command("map")
+def map_command(
+    results_dir: Annotated[Path, typer.Argument(help="A folder written by 'wallscreen run'")],
+    map_assets_url: AssetsUrlOpt = None,
+    map_assets_dir: AssetsDirOpt = None,
+    map_tiles: TilesOpt = None,
+) -> None:
+    """Re-render map.html from an earlier run's outputs (e.g. with other map assets)."""
+    try:
+        path = rerender_map(results_dir, MapOptions(map_assets_url, map_assets_dir, map_tiles))
+    except ScreeningError as exc:
+        raise _fail(exc) from None
+    console.print(f"map written to {path}")
 
 
 @app.command()

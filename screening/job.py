@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import datetime as dt
 import hashlib
+import json
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -15,7 +16,7 @@ from screening import __version__
 from screening.config import Config
 from screening.io import LoadedRegister, load_register
 from screening.io.locate import locate
-from screening.io.writers import write_csv
+from screening.io.writers import write_atomic, write_csv
 from screening.pipeline import RESULT_COLUMNS, Screening, evaluate
 
 Progress = Callable[[str], None]
@@ -35,6 +36,15 @@ class RunInfo:
     notes: list[str] = field(default_factory=list)
 
 
+@dataclass(frozen=True)
+class MapOptions:
+    """Where the map gets Leaflet and its tiles (for networks that block public CDNs)."""
+
+    assets_url: str | None = None
+    assets_dir: Path | None = None
+    tiles: str | None = None
+
+
 @dataclass
 class JobResult:
     """What a run produced and where it went."""
@@ -45,6 +55,10 @@ class JobResult:
     walls: pd.DataFrame
     geometry: np.ndarray
     outputs: dict[str, Path] = field(default_factory=dict)
+    sheets: dict[str, str] = field(default_factory=dict)
+    """Wall id -> calculation sheet path relative to the output folder."""
+    map_layers: dict[str, dict[str, str]] = field(default_factory=dict)
+    """Extra map overlays: layer name -> {wall id: note}."""
 
     @property
     def n_rejected(self) -> int:
@@ -119,8 +133,34 @@ def provenance(job: JobResult) -> list[tuple[str, object]]:
     ]
 
 
+def render_map(job: JobResult, out_dir: Path, options: MapOptions | None = None) -> Path:
+    """Write ``map.html`` for a run."""
+    from screening.mapview import build_map, write_map
+
+    options = options or MapOptions()
+    info = job.info
+    m = build_map(
+        job.walls,
+        job.geometry,
+        job.screening.results,
+        title=f"Retaining wall screening: {info.input_file}",
+        subtitle=f"Run {info.run_time} UTC, wallscreen {info.tool_version}; "
+        f"{len(job.walls)} walls screened, {job.n_rejected} rows rejected",
+        sheets=job.sheets,
+        assets_url=options.assets_url,
+        assets_dir=options.assets_dir,
+        tiles=options.tiles,
+        extra_layers=job.map_layers,
+    )
+    return write_map(m, out_dir / "map.html")
+
+
 def write_outputs(
-    job: JobResult, out_dir: str | Path, *, progress: Progress | None = None
+    job: JobResult,
+    out_dir: str | Path,
+    *,
+    progress: Progress | None = None,
+    map_options: MapOptions | None = None,
 ) -> dict[str, Path]:
     """Write every output of a run into ``out_dir``, each file atomically."""
     from screening.io.gis import write_geopackage
@@ -149,5 +189,62 @@ def write_outputs(
     )
     step("GeoPackage")
     outputs["geopackage"] = write_geopackage(job.walls, job.geometry, out / "walls.gpkg")
+    step("map")
+    outputs["map"] = render_map(job, out, map_options)
+    outputs["run"] = write_atomic(
+        out / "run.json",
+        lambda tmp: tmp.write_text(
+            json.dumps({k: v for k, v in provenance(job)}, indent=2, default=str), encoding="utf-8"
+        ),
+    )
     job.outputs.update(outputs)
     return outputs
+
+
+def rerender_map(results_dir: str | Path, options: MapOptions | None = None) -> Path:
+    """Re-render ``map.html`` from the outputs of an earlier run (walls.gpkg, results.csv, run.json)."""
+    import geopandas as gpd
+
+    from screening.errors import RegisterError
+    from screening.mapview import build_map, write_map
+
+    folder = Path(results_dir)
+    needed = [folder / "walls.gpkg", folder / "results.csv", folder / "run.json"]
+    missing = [p.name for p in needed if not p.exists()]
+    if missing:
+        raise RegisterError(f"{folder}: not a wallscreen output folder (missing {', '.join(missing)})")
+    gdf = gpd.read_file(folder / "walls.gpkg", layer="walls")
+    results = pd.read_csv(folder / "results.csv", dtype={"wall_id": str})
+    info = json.loads((folder / "run.json").read_text(encoding="utf-8"))
+    walls = pd.DataFrame(gdf.drop(columns="geometry"))
+    walls["located"] = walls["located"].astype(bool)
+    geometry = np.array([g if g is not None and not g.is_empty else None for g in gdf.geometry], dtype=object)
+    sheets = {
+        str(w): f"sheets/{sheet_filename(str(w))}"
+        for w in walls["wall_id"]
+        if (folder / "sheets" / sheet_filename(str(w))).exists()
+    }
+    options = options or MapOptions()
+    page = build_map(
+        walls,
+        geometry,
+        results,
+        title=f"Retaining wall screening: {info.get('input file', '')}",
+        subtitle=f"Run {info.get('run time (UTC)', '')} UTC, {info.get('tool', '')}; "
+        f"{info.get('walls screened', len(walls))} walls screened, "
+        f"{info.get('rows rejected', 0)} rows rejected",
+        sheets=sheets,
+        assets_url=options.assets_url,
+        assets_dir=options.assets_dir,
+        tiles=options.tiles,
+    )
+    return write_map(page, folder / "map.html")
+
+
+def sheet_filename(wall_id: str) -> str:
+    """A safe, unique file name for a wall's calculation sheet."""
+    import re
+
+    slug = re.sub(r"[^A-Za-z0-9_-]+", "_", wall_id).strip("_")[:40] or "wall"
+    digest = hashlib.sha1(wall_id.encode("utf-8")).hexdigest()[:8]
+    return f"{slug}-{digest}.html"

@@ -148,7 +148,15 @@ def add_priority(
     out["priority_score"] = np.round(100.0 * like * cons, 2)
     out["priority_band"] = priority.band(out["priority_score"], s)
     out["reason"] = priority.reasons(inputs, results).to_numpy()
-    for col in ("condition_rating", "consequence", "height_m", "lean_deg", "crack_height_m"):
+    for col in (
+        "condition_rating",
+        "consequence",
+        "height_m",
+        "base_width_m",
+        "lean_deg",
+        "crack_height_m",
+        "allowable_bearing_kpa",
+    ):
         out[col] = inputs[col].to_numpy()
     out["_far"] = (
         results.set_index(["wall_id", "case"])["middle_third_utilisation"]

@@ -1,0 +1,186 @@
+"""The risk map: data, escaping, and a real render in headless Chromium."""
+
+from __future__ import annotations
+
+import json
+import re
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+from typer.testing import CliRunner
+
+from screening.cli import app
+from screening.mapview import OVERTURNS_COLOUR, margin_class, margin_colours
+from tests.browser import browser_page, leaflet_dir
+from tests.conftest import worked_wall
+
+runner = CliRunner()
+ROOT = Path(__file__).resolve().parents[1]
+SAMPLE = ROOT / "sample_inventory"
+EVIL = "<script>window.__pwned = 1; alert(1)</script>"
+
+
+@pytest.fixture(scope="module")
+def sample_run(tmp_path_factory) -> Path:
+    out = tmp_path_factory.mktemp("sample") / "out"
+    result = runner.invoke(
+        app, ["run", str(SAMPLE / "register_2026.xlsx"), "-m", str(SAMPLE / "mapping.toml"), "-o", str(out)]
+    )
+    assert result.exit_code == 1, result.output  # the sample has deliberate mistakes
+    return out
+
+
+@pytest.fixture(scope="module")
+def evil_run(tmp_path_factory) -> Path:
+    tmp = tmp_path_factory.mktemp("evil")
+    rows = [
+        worked_wall(EVIL, 2.0, name='<img src=x onerror="window.__pwned=2">', lat=53.72, lon=-1.94),
+        worked_wall(
+            "W-2",
+            2.5,
+            name="Safe & sound",
+            lat=53.721,
+            lon=-1.941,
+            drainage="working",
+            geometry="LINESTRING (-1.9412 53.7212, -1.9405 53.7215)",
+        ),
+        worked_wall("NOWHERE", 2.5),
+    ]
+    pd.DataFrame(rows).to_csv(tmp / "evil.csv", index=False)
+    out = tmp / "out"
+    result = runner.invoke(app, ["run", str(tmp / "evil.csv"), "-o", str(out)])
+    assert result.exit_code == 0, result.output
+    return out
+
+
+def _data(html: str) -> dict:
+    match = re.search(r"var data = (\{.*?\});\n", html, re.S)
+    assert match
+    return json.loads(match.group(1))
+
+
+def test_margin_classes_follow_utilisation() -> None:
+    # the colour scale's edges (0.8, 1.0, 1.5) and the overturning state
+    u = np.array([0.1, 0.8, 0.81, 1.0, 1.2, 1.5, 7.0, np.inf])
+    states = ["within_middle_third"] * 7 + ["resultant_outside_base"]
+    assert margin_class(u, states).tolist() == [0, 0, 1, 1, 2, 2, 3, 4]
+    assert margin_colours()[4] == OVERTURNS_COLOUR
+
+
+def test_every_located_wall_is_in_the_map_data(sample_run: Path) -> None:
+    walls = pd.read_csv(sample_run / "walls.csv")
+    data = _data((sample_run / "map.html").read_text())
+    ids = {f["properties"]["id"] for f in data["features"]}
+    assert ids == set(walls.loc[walls.located, "wall_id"])
+    assert (~walls.located).sum() == 1  # HV-110 has no location in the sample
+    kinds = {f["geometry"]["type"] for f in data["features"]}
+    assert kinds == {"Point", "LineString"}  # lines for most walls, points for some
+
+
+def test_register_text_is_escaped_in_the_page(evil_run: Path) -> None:
+    html = (evil_run / "map.html").read_text()
+    assert "<script>window.__pwned" not in html
+    assert "<img src=x" not in html
+    data = _data(html)
+    assert {f["properties"]["id"] for f in data["features"]} == {EVIL, "W-2"}
+    assert "1 without a location" in html
+
+
+def test_no_external_resources_with_inlined_assets(evil_run: Path, tmp_path: Path) -> None:
+    dist = leaflet_dir()
+    result = runner.invoke(app, ["map", str(evil_run), "--map-assets-dir", str(dist)])
+    assert result.exit_code == 0, result.output
+    html = (evil_run / "map.html").read_text()
+    assert "cdn.jsdelivr" not in html and "<script src=" not in html
+    result = runner.invoke(
+        app, ["map", str(evil_run), "--map-assets-url", "https://intranet.example/leaflet"]
+    )
+    html = (evil_run / "map.html").read_text()
+    assert 'src="https://intranet.example/leaflet/leaflet.js"' in html
+
+
+@pytest.mark.browser
+def test_sample_map_renders_in_chromium(sample_run: Path) -> None:
+    walls = pd.read_csv(sample_run / "walls.csv").set_index("wall_id")
+    results = pd.read_csv(sample_run / "results.csv")
+    worst = results.merge(
+        walls[["worst_case"]], left_on=["wall_id", "case"], right_on=["wall_id", "worst_case"]
+    )
+    expected = dict(
+        zip(
+            worst.wall_id,
+            np.array(margin_colours())[margin_class(worst.utilisation, worst.state)],
+            strict=True,
+        )
+    )
+    with browser_page() as page:
+        errors: list[str] = []
+        page.on("pageerror", lambda e: errors.append(str(e)))
+        page.goto((sample_run / "map.html").as_uri())
+        page.wait_for_function("window.wallscreenMap !== undefined")
+        # every located wall is drawn: one SVG path each
+        drawn = page.evaluate(
+            """() => { const out = {}; const b = window.wallscreenMap.built['Worst case'].byId;
+                Object.keys(b).forEach(k => { out[b[k].feature.properties.id] = b[k].options.color;
+                  if (!b[k]._path || !b[k]._path.isConnected) out[b[k].feature.properties.id] = null; });
+                return out; }"""
+        )
+        assert set(drawn) == set(walls.index[walls.located])
+        assert page.locator("path.leaflet-interactive").count() == int(walls.located.sum())
+        # the colours follow the margins
+        assert all(drawn[w] is not None for w in drawn)
+        assert {w: c.upper() for w, c in drawn.items()} == {w: expected[w].upper() for w in drawn}
+        # the stroke actually painted matches too, for a sample of paths
+        strokes = page.eval_on_selector_all(
+            "path.leaflet-interactive", "ps => ps.map(p => p.getAttribute('stroke'))"
+        )
+        assert {s.upper() for s in strokes} <= {c.upper() for c in margin_colours()}
+        # search finds a wall by id and opens its popup with the right figures
+        first = walls.index[walls.located][0]
+        page.fill("#ws-search-input", first.lower())
+        page.press("#ws-search-input", "Enter")
+        popup = page.locator(".ws-popup")
+        popup.wait_for()
+        assert first in popup.inner_text()
+        row = results[(results.wall_id == first) & (results.case == "drained")].iloc[0]
+        cells = popup.locator("tr[data-case='drained'] td").all_inner_texts()
+        assert cells[1] == f"{row.utilisation:.2f}" or (np.isinf(row.utilisation) and cells[1] == "∞")
+        assert cells[5] == f"{row.fos_sliding:.2f}"
+        assert cells[6] == f"{row.fos_overturning:.2f}"
+        # the priority view recolours by band
+        page.get_by_text("Priority band").click()
+        page.wait_for_timeout(200)
+        assert "Inspection priority" in page.locator(".ws-legend").inner_text()
+        page.get_by_text("Worst case").click()
+        page.screenshot(path=str(sample_run / "map.png"))
+        assert not errors
+
+
+@pytest.mark.browser
+def test_register_script_never_runs(evil_run: Path) -> None:
+    with browser_page() as page:
+        dialogs: list[str] = []
+        page.on("dialog", lambda d: (dialogs.append(d.message), d.dismiss()))
+        page.goto((evil_run / "map.html").as_uri())
+        page.wait_for_function("window.wallscreenMap !== undefined")
+        page.fill("#ws-search-input", EVIL)
+        page.press("#ws-search-input", "Enter")
+        popup = page.locator(".ws-popup")
+        popup.wait_for()
+        assert EVIL in popup.inner_text()  # shown as text
+        page.wait_for_timeout(300)
+        assert page.evaluate("window.__pwned") is None
+        assert not dialogs
+
+
+@pytest.mark.browser
+def test_inlined_map_opens_with_every_request_blocked(evil_run: Path) -> None:
+    runner.invoke(app, ["map", str(evil_run), "--map-assets-dir", str(leaflet_dir())])
+    with browser_page() as page:
+        page.unroute("**/*")
+        page.route("**/*", lambda r: r.continue_() if r.request.url.startswith("file://") else r.abort())
+        page.goto((evil_run / "map.html").as_uri())
+        page.wait_for_function("window.wallscreenMap !== undefined")
+        assert page.evaluate("window.wallscreenMap.count") == 2
