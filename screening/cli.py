@@ -19,6 +19,7 @@ from screening import __version__
 from screening.config import load_config
 from screening.errors import ScreeningError
 from screening.job import JobResult, MapOptions, rerender_map, screen_file, write_outputs
+from screening.sheets import flagged_walls
 
 EXIT_OK = 0
 EXIT_SOME_REJECTED = 1
@@ -149,6 +150,7 @@ def _screen_with_progress(
     sheet: str | None,
     config: Path | None,
     options: MapOptions | None = None,
+    sheets: bool = False,
 ) -> JobResult:
     """Screen and write; a progress bar for registers large enough to wait for."""
     from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
@@ -174,6 +176,7 @@ def _screen_with_progress(
                 out,
                 progress=lambda name: bar.update(task, description=f"writing {name}"),
                 map_options=options,
+                sheet_ids=flagged_walls(job.screening.results) if sheets else None,
             )
     return job
 
@@ -188,11 +191,14 @@ def run(
     map_assets_url: AssetsUrlOpt = None,
     map_assets_dir: AssetsDirOpt = None,
     map_tiles: TilesOpt = None,
+    sheets: Annotated[
+        bool, typer.Option("--sheets", help="Also write calculation sheets for the flagged walls")
+    ] = False,
 ) -> None:
     """Screen every wall in the drained, blocked and surveyed cases and write the outputs."""
     options = MapOptions(map_assets_url, map_assets_dir, map_tiles)
     try:
-        job = _screen_with_progress(register, out, mapping, sheet, config, options)
+        job = _screen_with_progress(register, out, mapping, sheet, config, options, sheets)
     except ScreeningError as exc:
         raise _fail(exc) from None
     _print_problems(job)
@@ -229,6 +235,46 @@ def check(
         raise typer.Exit(EXIT_NOTHING_SCREENED)
     if job.n_rejected:
         raise typer.Exit(EXIT_SOME_REJECTED)
+
+
+@app.command()
+def explain(
+    register: RegisterArg,
+    wall_ids: Annotated[list[str] | None, typer.Argument(help="Wall ids to explain")] = None,
+    out: Annotated[Path, typer.Option("--out", "-o", help="Folder for the sheets")] = Path("wallscreen-out"),
+    flagged: Annotated[
+        bool,
+        typer.Option("--flagged", help="Every wall outside the middle third or over the allowable bearing"),
+    ] = False,
+    mapping: MappingOpt = None,
+    sheet: SheetOpt = None,
+    config: ConfigOpt = None,
+) -> None:
+    """Write a calculation sheet (HTML, printable) for walls of a register."""
+    from screening.job import write_explanations
+
+    try:
+        job = screen_file(register, mapping=mapping, sheet=sheet, config=load_config(config))
+        ids = list(wall_ids or [])
+        if flagged:
+            ids += flagged_walls(job.screening.results)
+        if not ids:
+            raise ScreeningError("name one or more wall ids, or give --flagged")
+        known = set(job.walls["wall_id"].astype(str)) if len(job.walls) else set()
+        unknown = [w for w in ids if w not in known]
+        if unknown:
+            rejected = set(job.screening.problems["wall_id"].astype(str))
+            why = [
+                f"{w} (rejected: see 'wallscreen check')" if w in rejected else f"{w} (not in the register)"
+                for w in unknown
+            ]
+            raise ScreeningError("no sheet for: " + ", ".join(why))
+        written = write_explanations(job, list(dict.fromkeys(ids)), out)
+    except ScreeningError as exc:
+        raise _fail(exc) from None
+    for wid, rel in written.items():
+        console.print(f"  {escape(wid):<14} {out / rel}")
+    console.print(f"{len(written)} calculation sheet(s) written. [dim]{CAUTION}[/]")
 
 
 @app.command("map")

@@ -53,6 +53,7 @@ def section_checks(
     uplift: bool,
     friction_deg: FloatArray,
     config: Config,
+    details: bool = False,
 ) -> dict[str, FloatArray]:
     """Forces, moments, resultant and factors of safety of one section.
 
@@ -106,7 +107,27 @@ def section_checks(
     restoring = weight * arm_w + wedge * arm_s + thrust * np.sin(delta) * base
     overturning = thrust_moment * np.cos(delta) + water_moment + up * up_arm
     x_r, ecc = stability.resultant_position(restoring, overturning, vertical, base)
-    return {
+    extra = {}
+    if details:
+        with np.errstate(invalid="ignore", divide="ignore"):
+            extra = {
+                "d_area_m2": area,
+                "d_wall_x_m": x_w,
+                "d_wall_z_m": z_w,
+                "d_wall_arm_m": arm_w,
+                "d_wedge_x_m": x_s,
+                "d_wedge_z_m": z_s,
+                "d_wedge_arm_m": arm_s,
+                "d_back_batter_m": back,
+                "d_thrust_kn_m": thrust,
+                "d_thrust_height_m": np.where(thrust > 0, thrust_moment / thrust, np.nan),
+                "d_thrust_moment_knm_m": thrust_moment * np.cos(delta),
+                "d_water_kn_m": water,
+                "d_water_moment_knm_m": water_moment,
+                "d_uplift_arm_m": up_arm,
+                "d_water_height_m": hw,
+            }
+    return extra | {
         "ka": ka,
         "weight_kn_m": weight,
         "wedge_kn_m": wedge,
@@ -151,7 +172,9 @@ def case_water_heights(p: Mapping[str, FloatArray]) -> dict[str, FloatArray]:
     }
 
 
-def run_cases(inputs: Mapping[str, NDArray[np.float64]], config: Config) -> dict[str, NDArray]:
+def run_cases(
+    inputs: Mapping[str, NDArray[np.float64]], config: Config, *, details: bool = False
+) -> dict[str, NDArray]:
     """Screen every wall in every case in one vectorised pass.
 
     Parameters
@@ -160,6 +183,9 @@ def run_cases(inputs: Mapping[str, NDArray[np.float64]], config: Config) -> dict
         The :data:`ENGINE_INPUTS` columns, all of length n, blanks filled.
     config : Config
         Required factors of safety and the uplift switch.
+    details : bool
+        Also return the intermediate values (keys ``d_…``, and ``crack_d_…`` for the
+        crack plane) that a calculation sheet sets out.
 
     Returns
     -------
@@ -172,7 +198,7 @@ def run_cases(inputs: Mapping[str, NDArray[np.float64]], config: Config) -> dict
     hw = np.concatenate([waters[c] for c in CASES])
 
     out: dict[str, NDArray] = section_checks(
-        p, hw, uplift=config.uplift, friction_deg=p["base_friction_deg"], config=config
+        p, hw, uplift=config.uplift, friction_deg=p["base_friction_deg"], config=config, details=details
     )
     toe, heel, state = stability.base_pressure(
         out["vertical_kn_m"], out["resultant_from_toe_m"], p["base_width_m"]
@@ -195,6 +221,7 @@ def run_cases(inputs: Mapping[str, NDArray[np.float64]], config: Config) -> dict
         uplift=False,
         friction_deg=p["joint_friction_deg"],
         config=config,
+        details=details,
     )
     nan = np.full(3 * n, np.nan)
     out["crack_eccentricity_m"] = np.where(cracked, crack["eccentricity_m"], nan)
@@ -204,6 +231,21 @@ def run_cases(inputs: Mapping[str, NDArray[np.float64]], config: Config) -> dict
     out["crack_overturning_utilisation"] = stability.fos_utilisation(
         out["crack_fos_overturning"], config.fos_overturning_required
     )
+    if details:
+        for key in (
+            "vertical_kn_m",
+            "horizontal_kn_m",
+            "restoring_moment_knm_m",
+            "overturning_moment_knm_m",
+            "resultant_from_toe_m",
+            "weight_kn_m",
+            "wedge_kn_m",
+            "ka",
+        ):
+            crack[f"d_{key}"] = crack[key]
+        out |= {f"crack_{k}": np.where(cracked, v, np.nan) for k, v in crack.items() if k.startswith("d_")}
+        out["crack_d_base_width_m"] = np.where(cracked, crack_p["base_width_m"], np.nan)
+        out["crack_d_height_m"] = np.where(cracked, crack_p["height_m"], np.nan)
     out["crack_sliding_utilisation"] = stability.fos_utilisation(
         out["crack_fos_sliding"], config.fos_sliding_required
     )

@@ -16,7 +16,7 @@ from screening import __version__
 from screening.config import Config
 from screening.io import LoadedRegister, load_register
 from screening.io.locate import locate
-from screening.io.writers import write_atomic, write_csv
+from screening.io.writers import write_csv, write_text_atomic
 from screening.pipeline import RESULT_COLUMNS, Screening, evaluate
 
 Progress = Callable[[str], None]
@@ -133,6 +133,16 @@ def provenance(job: JobResult) -> list[tuple[str, object]]:
     ]
 
 
+def write_explanations(job: JobResult, wall_ids: list[str], out_dir: str | Path) -> dict[str, str]:
+    """Calculation sheets for the given walls (see :mod:`screening.sheets`)."""
+    from screening.sheets import write_sheets
+
+    prepared = job.screening.prepared
+    return write_sheets(
+        prepared.walls, prepared.assumptions, wall_ids, out_dir, job.info.config, provenance(job)
+    )
+
+
 def render_map(job: JobResult, out_dir: Path, options: MapOptions | None = None) -> Path:
     """Write ``map.html`` for a run."""
     from screening.mapview import build_map, write_map
@@ -161,6 +171,7 @@ def write_outputs(
     *,
     progress: Progress | None = None,
     map_options: MapOptions | None = None,
+    sheet_ids: list[str] | None = None,
 ) -> dict[str, Path]:
     """Write every output of a run into ``out_dir``, each file atomically."""
     from screening.io.gis import write_geopackage
@@ -177,10 +188,14 @@ def write_outputs(
         "problems": write_csv(run.problems, out / "problems.csv"),
         "assumptions": write_csv(run.prepared.assumptions, out / "assumptions.csv"),
     }
+    if sheet_ids:
+        step(f"{len(sheet_ids)} calculation sheets")
+        job.sheets.update(write_explanations(job, sheet_ids, out))
+        outputs["sheets"] = out / "sheets"
     step("workbook")
     outputs["workbook"] = write_workbook(
         out / "report.xlsx",
-        walls=job.walls,
+        walls=job.walls.assign(sheet=job.walls["wall_id"].astype(str).map(job.sheets)),
         results=run.results.reindex(columns=list(RESULT_COLUMNS)),
         problems=run.problems,
         assumptions=run.prepared.assumptions,
@@ -191,11 +206,8 @@ def write_outputs(
     outputs["geopackage"] = write_geopackage(job.walls, job.geometry, out / "walls.gpkg")
     step("map")
     outputs["map"] = render_map(job, out, map_options)
-    outputs["run"] = write_atomic(
-        out / "run.json",
-        lambda tmp: tmp.write_text(
-            json.dumps({k: v for k, v in provenance(job)}, indent=2, default=str), encoding="utf-8"
-        ),
+    outputs["run"] = write_text_atomic(
+        out / "run.json", json.dumps(dict(provenance(job)), indent=2, default=str)
     )
     job.outputs.update(outputs)
     return outputs

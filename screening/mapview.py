@@ -22,7 +22,7 @@ import pandas as pd
 import shapely
 
 from screening.config import CASES
-from screening.io.writers import write_atomic
+from screening.io.writers import write_text_atomic
 from screening.priority import BAND_LABELS, BANDS
 from screening.report import BAND_COLOURS
 
@@ -118,7 +118,7 @@ def feature_collection(
     worst = pd.Categorical(w["worst_case"], categories=CASES).codes.tolist()
     cols = {
         "id": w["wall_id"].astype(str).tolist(),
-        "name": w["name"].fillna("").astype(str).tolist(),
+        "name": [("" if pd.isna(v) else str(v)) for v in w["name"]],
         "band": w["priority_band"].astype(str).tolist(),
         "score": _num(w["priority_score"], 1),
         "rank": w["rank"].astype(int).tolist(),
@@ -270,7 +270,7 @@ class MapPage:
 
 def write_map(page: MapPage, target: str | Path) -> Path:
     """Write the map's HTML atomically."""
-    return write_atomic(target, lambda tmp: tmp.write_text(page.html(), encoding="utf-8"))
+    return write_text_atomic(target, page.html())
 
 
 _CSS = """

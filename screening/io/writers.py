@@ -44,3 +44,8 @@ def write_atomic(target: str | Path, writer: Callable[[Path], object]) -> Path:
 def write_csv(frame: pd.DataFrame, target: str | Path) -> Path:
     """CSV with ``inf`` written as such and blanks for missing values."""
     return write_atomic(target, lambda tmp: frame.to_csv(tmp, index=False, encoding="utf-8"))
+
+
+def write_text_atomic(target: str | Path, text: str) -> Path:
+    """A UTF-8 text file, written atomically."""
+    return write_atomic(target, lambda tmp: tmp.write_text(text, encoding="utf-8"))

@@ -1,0 +1,138 @@
+"""Calculation sheets: every number equals the engine's, crack and lean shown, self-contained."""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+from typer.testing import CliRunner
+
+from screening.cli import app
+from screening.job import sheet_filename
+from screening.pipeline import RESULT_COLUMNS
+from tests.conftest import worked_wall
+
+runner = CliRunner()
+SPAN = re.compile(r'<span class="v" data-key="([^"]+)">([^<]+)</span>')
+
+
+@pytest.fixture(scope="module")
+def sheet_run(tmp_path_factory) -> Path:
+    tmp = tmp_path_factory.mktemp("sheets")
+    rows = [
+        worked_wall(
+            "CRACKED",
+            1.8,
+            front_batter_m=0.3,
+            top_width_m=0.9,
+            crack_height_m=1.2,
+            lean_deg=2.5,
+            drainage="partial",
+            surcharge_kpa=10.0,
+            wall_friction_deg=15.0,
+            material="stone_masonry",
+            lat=53.7,
+            lon=-1.9,
+        ),
+        worked_wall("PLAIN", 2.5, drainage="working", lat=53.701, lon=-1.9),
+        worked_wall(
+            "B15", 1.5, drainage="blocked", lat=53.702, lon=-1.9
+        ),  # resultant outside the base when blocked
+    ]
+    pd.DataFrame(rows).to_csv(tmp / "reg.csv", index=False)
+    out = tmp / "out"
+    result = runner.invoke(app, ["run", str(tmp / "reg.csv"), "-o", str(out), "--sheets"])
+    assert result.exit_code == 0, result.output
+    return out
+
+
+def _values(path: Path) -> dict[str, str]:
+    return dict(SPAN.findall(path.read_text()))
+
+
+def _shown(value: float, digits: int) -> str:
+    if np.isinf(value):
+        return "∞"
+    if np.isnan(value):
+        return "–"
+    return f"{value:.{digits}f}"
+
+
+def test_every_number_equals_the_engine_result(sheet_run: Path) -> None:
+    results = pd.read_csv(sheet_run / "results.csv")
+    sheets = sorted((sheet_run / "sheets").glob("*.html"))
+    assert sheets
+    checked = 0
+    for path in sheets:
+        values = _values(path)
+        wall = next(w for w in results.wall_id.unique() if sheet_filename(w) == path.name)
+        for key, text in values.items():
+            case, _, col = key.partition(".")
+            if case not in ("drained", "blocked", "surveyed") or col not in RESULT_COLUMNS:
+                continue
+            value = float(results.loc[(results.wall_id == wall) & (results.case == case), col].iloc[0])
+            digits = len(text.split(".")[1]) if "." in text else 0
+            assert text == _shown(value, digits), (wall, key)
+            checked += 1
+    assert checked > 100
+
+
+def test_flagged_walls_have_sheets_and_links(sheet_run: Path) -> None:
+    results = pd.read_csv(sheet_run / "results.csv")
+    flagged = set(results.loc[~results.in_middle_third | (results.bearing_utilisation > 1), "wall_id"])
+    names = {p.name for p in (sheet_run / "sheets").glob("*.html")}
+    assert names == {sheet_filename(w) for w in flagged}
+    html = (sheet_run / "map.html").read_text()
+    for w in flagged:
+        assert f"sheets/{sheet_filename(w)}" in html
+    import openpyxl
+
+    ranked = openpyxl.load_workbook(sheet_run / "report.xlsx")["Ranked walls"]
+    headers = [c.value for c in ranked[1]]
+    col = headers.index("Calculation sheet")
+    # xlsxwriter writes relative file links with backslashes, which Excel resolves on every platform
+    links = {
+        row[1].value: row[col].hyperlink.target.replace("\\", "/")
+        for row in ranked.iter_rows(min_row=2)
+        if row[col].hyperlink
+    }
+    assert links == {w: f"sheets/{sheet_filename(w)}" for w in flagged}
+
+
+def test_crack_and_lean_are_shown(sheet_run: Path) -> None:
+    page = (sheet_run / "sheets" / sheet_filename("CRACKED")).read_text()
+    values = _values(sheet_run / "sheets" / sheet_filename("CRACKED"))
+    assert values["input.lean_deg"] == "2.500"
+    assert "Part above the crack" in page and "z<sub>c</sub> = 1.20 m" in page
+    assert "blocked.crack_fos_sliding" in values
+    assert "x cos ω − z sin ω" in page
+    assert "qualified engineer" in page
+
+
+def test_overturning_wall_is_explained_as_such(sheet_run: Path) -> None:
+    page = (sheet_run / "sheets" / sheet_filename("B15")).read_text()
+    assert "the resultant falls outside the base" in page
+    assert _values(sheet_run / "sheets" / sheet_filename("B15"))["blocked.toe_pressure_kpa"] == "∞"
+
+
+def test_sheet_has_no_external_resources(sheet_run: Path) -> None:
+    for path in (sheet_run / "sheets").glob("*.html"):
+        page = path.read_text()
+        assert not re.search(r'(src|href)\s*=\s*["\'](https?:)?//', page)
+        assert "url(http" not in page and "@import" not in page
+        assert 'src="data:image/png;base64,' in page or "src='data:image/png;base64," in page
+
+
+def test_explain_command_names_unknown_and_rejected_walls(tmp_path: Path) -> None:
+    pd.DataFrame([worked_wall("A", 2.0), worked_wall("BAD", 2.0, top_width_m=3.0)]).to_csv(
+        tmp_path / "r.csv", index=False
+    )
+    result = runner.invoke(app, ["explain", str(tmp_path / "r.csv"), "A", "-o", str(tmp_path / "o")])
+    assert result.exit_code == 0, result.output
+    assert (tmp_path / "o" / "sheets" / sheet_filename("A")).exists()
+    result = runner.invoke(app, ["explain", str(tmp_path / "r.csv"), "BAD", "ZZZ", "-o", str(tmp_path / "o")])
+    assert result.exit_code == 2
+    assert "BAD (rejected" in result.output and "ZZZ (not in the register)" in result.output
