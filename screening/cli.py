@@ -7,6 +7,7 @@ columns missing) or the command line was wrong.
 
 from __future__ import annotations
 
+import json
 from pathlib import Path
 from typing import Annotated
 
@@ -138,9 +139,44 @@ def _print_summary(job: JobResult, top: int = 10) -> None:
                 escape(str(w.reason)),
             )
         console.print(table)
+    _print_changes(job)
     for name, path in job.outputs.items():
         console.print(f"  {name:<12} {path}")
     console.print(f"[dim]{CAUTION}[/]")
+
+
+def _print_changes(job: JobResult) -> None:
+    recorded = job.recorded
+    if recorded is not None and not recorded.stored:
+        console.print(
+            f"This input was already screened with the same settings (run {recorded.same_as}): "
+            "the history is unchanged."
+        )
+    if job.changes is not None and job.previous_run is not None:
+        prev = job.previous_run
+        console.print(f"Compared with run {prev['run_id']} ({escape(str(prev['input_file']))}):")
+        print_changes(job.changes)
+
+
+def print_changes(changes: object, limit: int = 12) -> None:
+    """Counts by status and the first changed walls."""
+    import pandas as pd
+
+    from screening.history import describe_change
+
+    assert isinstance(changes, pd.DataFrame)
+    counts = changes["status"].value_counts()
+    console.print(
+        "  "
+        + ", ".join(
+            f"{k} {int(counts.get(k, 0))}" for k in ("changed", "added", "removed", "rejected", "unchanged")
+        )
+    )
+    moved = changes[changes["status"] != "unchanged"].head(limit)
+    for r in moved.itertuples(index=False):
+        console.print(
+            f"  {escape(str(r.wall_id)):<10} {r.status:<8} {escape(describe_change(pd.Series(r._asdict())))}"
+        )
 
 
 def _screen_with_progress(
@@ -151,6 +187,7 @@ def _screen_with_progress(
     config: Path | None,
     options: MapOptions | None = None,
     sheets: bool = False,
+    history: Path | None = None,
 ) -> JobResult:
     """Screen and write; a progress bar for registers large enough to wait for."""
     from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
@@ -166,7 +203,7 @@ def _screen_with_progress(
         transient=True,
     ) as bar:
         task = bar.add_task("reading and screening", total=None)
-        job = screen_file(register, mapping=mapping, sheet=sheet, config=cfg)
+        job = screen_file(register, mapping=mapping, sheet=sheet, config=cfg, history=history)
         if len(job.walls) == 0:
             _print_problems(job)
             raise ScreeningError(f"{register}: no row could be screened")
@@ -194,11 +231,17 @@ def run(
     sheets: Annotated[
         bool, typer.Option("--sheets", help="Also write calculation sheets for the flagged walls")
     ] = False,
+    history: Annotated[
+        Path | None,
+        typer.Option("--history", help="Run history GeoPackage [default: OUT/history.gpkg]"),
+    ] = None,
+    no_history: Annotated[bool, typer.Option("--no-history", help="Keep no run history")] = False,
 ) -> None:
     """Screen every wall in the drained, blocked and surveyed cases and write the outputs."""
     options = MapOptions(map_assets_url, map_assets_dir, map_tiles)
+    hist = None if no_history else (history or out / "history.gpkg")
     try:
-        job = _screen_with_progress(register, out, mapping, sheet, config, options, sheets)
+        job = _screen_with_progress(register, out, mapping, sheet, config, options, sheets, hist)
     except ScreeningError as exc:
         raise _fail(exc) from None
     _print_problems(job)
@@ -275,6 +318,62 @@ def explain(
     for wid, rel in written.items():
         console.print(f"  {escape(wid):<14} {out / rel}")
     console.print(f"{len(written)} calculation sheet(s) written. [dim]{CAUTION}[/]")
+
+
+@app.command()
+def compare(
+    first: Annotated[Path | None, typer.Argument(help="A result folder, or a run id with --history")] = None,
+    second: Annotated[Path | None, typer.Argument(help="A result folder, or a run id with --history")] = None,
+    history: Annotated[Path | None, typer.Option("--history", help="The run history GeoPackage")] = None,
+    out: Annotated[Path, typer.Option("--out", "-o", help="CSV of the changes")] = Path("changes.csv"),
+) -> None:
+    """What changed between two runs: the last two in a history, two named runs, or two result folders."""
+    import pandas as pd
+
+    from screening.history import compare as compare_runs
+    from screening.history import list_runs, run_walls
+    from screening.io.writers import write_csv
+
+    try:
+        if history is not None:
+            runs = list_runs(history)
+            if first is None and second is None:
+                if len(runs) < 2:
+                    raise ScreeningError(f"{history}: fewer than two runs recorded")
+                a_id, b_id = runs["run_id"].iloc[-2], runs["run_id"].iloc[-1]
+            elif first is not None and second is not None:
+                a_id, b_id = str(first), str(second)
+            else:
+                raise ScreeningError("name two run ids, or none for the last two runs")
+            missing = [r for r in (a_id, b_id) if r not in set(runs["run_id"])]
+            if missing:
+                raise ScreeningError(
+                    f"no run {', '.join(missing)} in {history}; runs: {', '.join(runs['run_id'])}"
+                )
+            before, after = run_walls(history, a_id), run_walls(history, b_id)
+            rejected = json.loads(runs.set_index("run_id").at[b_id, "rejected_walls"] or "[]")
+            label = f"run {a_id} → run {b_id}"
+        elif first is not None and second is not None:
+            for folder in (first, second):
+                if not (folder / "walls.csv").exists():
+                    raise ScreeningError(f"{folder}: no walls.csv (not a wallscreen result folder)")
+            before = pd.read_csv(first / "walls.csv", dtype={"wall_id": str})
+            after = pd.read_csv(second / "walls.csv", dtype={"wall_id": str})
+            problems = second / "problems.csv"
+            rejected = []
+            if problems.exists():
+                p = pd.read_csv(problems, dtype={"wall_id": str})
+                rejected = list(p.loc[p["severity"] == "error", "wall_id"].dropna())
+            label = f"{first} → {second}"
+        else:
+            raise ScreeningError("give two result folders, or --history")
+        changes = compare_runs(before, after, rejected=rejected)
+        write_csv(changes, out)
+    except ScreeningError as exc:
+        raise _fail(exc) from None
+    console.print(f"Changes {escape(label)}:")
+    print_changes(changes)
+    console.print(f"written to {out}")
 
 
 @app.command("map")

@@ -122,6 +122,10 @@ class Config:
         )
     )
     consequence_default: str = "road"
+    lean_rate_threshold_deg_per_year: float = 0.25
+    """Lean growing faster than this is flagged. Two surveys with a digital inclinometer on a
+    masonry face each read to about ±0.1° (common practice, from memory), so a change below
+    about 0.2° between surveys a year apart cannot be told from survey scatter."""
     condition_default: Default = Default(3.0, "not recorded: middle of the 1-5 scale assumed")
     priority: PrioritySettings = field(default_factory=PrioritySettings)
     # --- run

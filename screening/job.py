@@ -8,6 +8,7 @@ import json
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -59,6 +60,16 @@ class JobResult:
     """Wall id -> calculation sheet path relative to the output folder."""
     map_layers: dict[str, dict[str, str]] = field(default_factory=dict)
     """Extra map overlays: layer name -> {wall id: note}."""
+    history: Path | None = None
+    changes: pd.DataFrame | None = None
+    """Per-wall comparison with the previous run in the history."""
+    previous_run: dict[str, Any] | None = None
+    recorded: Any = None
+
+    @property
+    def run_id(self) -> str:
+        stamp = self.info.run_time.replace("-", "").replace(":", "").replace("+0000", "")
+        return f"{stamp}-{self.info.input_sha256[:8]}"
 
     @property
     def n_rejected(self) -> int:
@@ -80,11 +91,19 @@ def screen_file(
     mapping: str | Path | None = None,
     sheet: str | int | None = None,
     config: Config | None = None,
+    history: str | Path | None = None,
 ) -> JobResult:
-    """Load, screen and locate a register file, without writing anything."""
+    """Load, screen and locate a register file, without writing anything.
+
+    With a ``history`` file, earlier surveys recorded there count towards each wall's lean rate.
+    """
+    from screening.history import lean_points
+
     config = config or Config()
     loaded = load_register(register_path, mapping=mapping, sheet=sheet)
-    run = evaluate(loaded.frame, config, labels=loaded.labels, shown=loaded.shown)
+    run = evaluate(
+        loaded.frame, config, labels=loaded.labels, shown=loaded.shown, history_points=lean_points(history)
+    )
     info = RunInfo(
         input_file=Path(register_path).name,
         input_sha256=sha256(register_path),
@@ -112,7 +131,7 @@ def screen_file(
         walls = walls.copy()
         geometry = geometry[order]
         walls["located"] = np.array([g is not None for g in geometry], dtype=bool)
-    return JobResult(run, loaded, info, walls, geometry)
+    return JobResult(run, loaded, info, walls, geometry, history=Path(history) if history else None)
 
 
 def provenance(job: JobResult) -> list[tuple[str, object]]:
@@ -131,6 +150,58 @@ def provenance(job: JobResult) -> list[tuple[str, object]]:
         ("walls without a location", int((~job.walls["located"]).sum()) if len(job.walls) else 0),
         ("reader notes", "; ".join(info.notes)),
     ]
+
+
+def _settings_digest(job: JobResult) -> str:
+    from screening.history import settings_digest
+
+    return settings_digest(job.info.config.to_dict())
+
+
+def compare_with_history(job: JobResult) -> None:
+    """Compare this run with the latest different run in the history (sets ``job.changes``)."""
+    from screening.history import compare, describe_change, list_runs, run_walls
+
+    assert job.history is not None
+    runs = list_runs(job.history)
+    digest = _settings_digest(job)
+    other = runs[~((runs["input_sha256"] == job.info.input_sha256) & (runs["settings_sha256"] == digest))]
+    if other.empty:
+        return
+    previous = other.iloc[-1].to_dict()
+    before = run_walls(job.history, previous["run_id"])
+    job.changes = compare(before, job.walls, rejected=_rejected_ids(job))
+    job.previous_run = previous
+    moved = job.changes[job.changes["status"].isin(["changed", "added"])]
+    job.map_layers["Changed since the last run"] = {
+        str(r.wall_id): describe_change(pd.Series(r._asdict())) for r in moved.itertuples(index=False)
+    }
+
+
+def _rejected_ids(job: JobResult) -> list[str]:
+    problems = job.screening.problems
+    errors = problems[problems["severity"] == "error"]
+    return list(dict.fromkeys(errors["wall_id"].dropna().astype(str)))
+
+
+def record_history(job: JobResult) -> Any:
+    """Add this run to the history (not again if the same input and settings are there)."""
+    from screening.history import record_run
+
+    assert job.history is not None
+    run = {
+        "run_id": job.run_id,
+        "run_time": job.info.run_time,
+        "input_file": job.info.input_file,
+        "input_sha256": job.info.input_sha256,
+        "settings_sha256": _settings_digest(job),
+        "tool_version": job.info.tool_version,
+        "settings": json.dumps(job.info.config.to_dict(), default=str),
+        "n_walls": len(job.walls),
+        "n_rejected": job.n_rejected,
+        "rejected_walls": json.dumps(sorted(_rejected_ids(job))),
+    }
+    return record_run(job.history, run=run, walls=job.walls, geometry=job.geometry)
 
 
 def write_explanations(job: JobResult, wall_ids: list[str], out_dir: str | Path) -> dict[str, str]:
@@ -188,6 +259,11 @@ def write_outputs(
         "problems": write_csv(run.problems, out / "problems.csv"),
         "assumptions": write_csv(run.prepared.assumptions, out / "assumptions.csv"),
     }
+    if job.history is not None:
+        step("comparison with the previous run")
+        compare_with_history(job)
+        if job.changes is not None:
+            outputs["changes"] = write_csv(job.changes, out / "changes.csv")
     if sheet_ids:
         step(f"{len(sheet_ids)} calculation sheets")
         job.sheets.update(write_explanations(job, sheet_ids, out))
@@ -201,11 +277,16 @@ def write_outputs(
         assumptions=run.prepared.assumptions,
         settings=job.info.config.to_dict(),
         provenance=provenance(job),
+        changes=job.changes,
     )
     step("GeoPackage")
     outputs["geopackage"] = write_geopackage(job.walls, job.geometry, out / "walls.gpkg")
     step("map")
     outputs["map"] = render_map(job, out, map_options)
+    if job.history is not None:
+        step("history")
+        job.recorded = record_history(job)
+        outputs["history"] = job.history
     outputs["run"] = write_text_atomic(
         out / "run.json", json.dumps(dict(provenance(job)), indent=2, default=str)
     )

@@ -6,6 +6,7 @@ everything a run produces (problems, assumptions, per-wall summary) together.
 
 from __future__ import annotations
 
+import dataclasses
 import warnings
 from dataclasses import dataclass
 
@@ -15,6 +16,7 @@ import pandas as pd
 from screening import priority
 from screening.config import CASES, Config
 from screening.engine import run_cases
+from screening.history import INPUT_COLUMNS, lean_rates
 from screening.prepare import Prepared, prepare
 from screening.stability import FLOATING, OUTSIDE_BASE
 
@@ -148,15 +150,7 @@ def add_priority(
     out["priority_score"] = np.round(100.0 * like * cons, 2)
     out["priority_band"] = priority.band(out["priority_score"], s)
     out["reason"] = priority.reasons(inputs, results).to_numpy()
-    for col in (
-        "condition_rating",
-        "consequence",
-        "height_m",
-        "base_width_m",
-        "lean_deg",
-        "crack_height_m",
-        "allowable_bearing_kpa",
-    ):
+    for col in (*INPUT_COLUMNS, "lean_rate_deg_per_year", "lean_rate_mm_per_year", "lean_growing"):
         out[col] = inputs[col].to_numpy()
     out["_far"] = (
         results.set_index(["wall_id", "case"])["middle_third_utilisation"]
@@ -186,10 +180,41 @@ def _floating_problems(results: pd.DataFrame, walls: pd.DataFrame) -> pd.DataFra
     )
 
 
-def evaluate(register: pd.DataFrame, config: Config | None = None, **kwargs: object) -> Screening:
+def with_lean_rates(
+    prepared: Prepared, config: Config, history_points: pd.DataFrame | None = None
+) -> Prepared:
+    """Add the lean rate of each wall from every survey date known (this register's earlier
+    rows, its current rows and the history's runs)."""
+    cols = ["wall_id", "survey_date", "lean_deg", "height_m"]
+    parts = [prepared.walls[cols], prepared.earlier_surveys.reindex(columns=cols)]
+    if history_points is not None and len(history_points):
+        parts.append(history_points[cols])
+    points = pd.concat(parts, ignore_index=True)
+    points["wall_id"] = points["wall_id"].astype(str)
+    rates = (
+        lean_rates(points)
+        if len(points)
+        else pd.DataFrame(columns=["lean_rate_deg_per_year", "lean_rate_mm_per_year"])
+    )
+    walls = prepared.walls.copy()
+    ids = walls["wall_id"].astype(str)
+    for col in ("lean_rate_deg_per_year", "lean_rate_mm_per_year"):
+        walls[col] = ids.map(rates[col]).astype(float).to_numpy()
+    walls["lean_growing"] = walls["lean_rate_deg_per_year"] > config.lean_rate_threshold_deg_per_year
+    return dataclasses.replace(prepared, walls=walls)
+
+
+def evaluate(
+    register: pd.DataFrame,
+    config: Config | None = None,
+    *,
+    history_points: pd.DataFrame | None = None,
+    **kwargs: object,
+) -> Screening:
     """Prepare and screen a register; keep problems, assumptions and the per-wall summary."""
     config = config or Config()
     prepared = prepare(register, config, **kwargs)  # type: ignore[arg-type]
+    prepared = with_lean_rates(prepared, config, history_points)
     if len(prepared.walls) == 0:
         empty = pd.DataFrame({c: pd.Series(dtype=object) for c in RESULT_COLUMNS})
         return Screening(prepared, empty, pd.DataFrame(), prepared.problems, config)

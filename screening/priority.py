@@ -56,8 +56,8 @@ class PrioritySettings:
     utilisation_scale: float = 1.5
     lean_full_deg: float = 5.0
     lean_rate_full_deg_per_year: float = 0.5
-    weight_lean_rate: float = 0.0
-    """Weight of the measured lean rate (used once a lean history exists)."""
+    weight_lean_rate: float = 0.1
+    """Weight of the measured lean rate (walls with one survey count as not moving)."""
     height_full_m: float = 6.0
     band_thresholds: Mapping[str, float] = field(
         default_factory=lambda: MappingProxyType(
@@ -174,6 +174,10 @@ def reasons(walls: pd.DataFrame, results: pd.DataFrame) -> pd.Series:
     parts.append(cond.where(w["condition_rating"] >= 3, ""))
     lean = w["lean_deg"]
     parts.append(("lean " + lean.map(lambda v: f"{v:.1f}") + "° outwards").where(lean >= 1.0, ""))
+    if "lean_rate_deg_per_year" in w:
+        rate = w["lean_rate_deg_per_year"]
+        growing = w["lean_growing"].fillna(False).astype(bool) if "lean_growing" in w else rate > 0
+        parts.append(("lean growing " + rate.map(lambda v: f"{v:.2f}") + "°/yr").where(growing, ""))
     crack = w["crack_height_m"]
     parts.append(("crack at " + crack.map(lambda v: f"{v:.1f}") + " m").where(crack.notna(), ""))
     below = w["consequence"].astype(str).str.replace("_", " ")

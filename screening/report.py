@@ -267,6 +267,7 @@ def write_workbook(
     settings: dict[str, Any],
     provenance: list[tuple[str, Any]],
     method_text: list[tuple[str, str]] = METHOD_TEXT,
+    changes: pd.DataFrame | None = None,
     look_first: int = 100,
 ) -> Path:
     """Write ``report.xlsx`` atomically. See the module docstring for the sheets."""
@@ -311,6 +312,23 @@ def write_workbook(
             )
         ]
         _table(sheet, first, short, f, widths={"reason": 90, "name": 30}, start_row=3)
+
+        if changes is not None:
+            sheet = book.add_worksheet("Changes since last run")
+            change_cols = [
+                ("wall_id", "Wall", "text"),
+                ("status", "Status", "word"),
+                ("inputs_changed", "Inputs changed (from → to)", "text"),
+                ("utilisation_before", "Utilisation before [-]", "num2"),
+                ("utilisation_after", "Utilisation after [-]", "num2"),
+                ("governing_check_before", "Governing before", "word"),
+                ("governing_check_after", "Governing after", "word"),
+                ("priority_band_before", "Band before", "word"),
+                ("priority_band_after", "Band after", "word"),
+                ("rank_before", "Rank before", "int"),
+                ("rank_after", "Rank after", "int"),
+            ]
+            _table(sheet, changes, change_cols, f, widths={"inputs_changed": 70})
 
         sheet = book.add_worksheet("Results by case")
         cols = [

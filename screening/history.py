@@ -1,0 +1,405 @@
+"""Run history in a GeoPackage, the comparison of two runs, and lean rates.
+
+The history is an OGC GeoPackage (SQLite) that any GIS opens: a table ``runs``
+(one row per run: time, input file and SHA-256, tool version, settings) and a
+layer ``wall_history`` (one row per wall per run: the inputs used, the results
+and the wall's geometry). The file is created once with pyogrio; runs are then
+added with Python's sqlite3 inside one ``BEGIN IMMEDIATE`` transaction, so
+concurrent runs queue on SQLite's lock instead of corrupting the file.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import sqlite3
+import struct
+import tempfile
+from collections.abc import Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+import shapely
+
+from screening.errors import ScreeningError
+
+RUNS = "runs"
+WALLS = "wall_history"
+SRS_ID = 4326
+
+RUN_COLUMNS: dict[str, str] = {
+    "run_id": "TEXT",
+    "run_time": "TEXT",
+    "input_file": "TEXT",
+    "input_sha256": "TEXT",
+    "settings_sha256": "TEXT",
+    "tool_version": "TEXT",
+    "settings": "TEXT",
+    "n_walls": "INTEGER",
+    "n_rejected": "INTEGER",
+    "rejected_walls": "TEXT",
+}
+
+# the inputs compared between runs, then the results kept per wall
+INPUT_COLUMNS: Sequence[str] = (
+    "survey_date",
+    "height_m",
+    "base_width_m",
+    "top_width_m",
+    "front_batter_m",
+    "retained_height_m",
+    "lean_deg",
+    "crack_height_m",
+    "material",
+    "wall_unit_weight_kn_m3",
+    "foundation",
+    "allowable_bearing_kpa",
+    "base_friction_deg",
+    "drainage",
+    "surveyed_water_height_m",
+    "condition_rating",
+    "consequence",
+)
+RESULT_COLUMNS: Sequence[str] = (
+    "name",
+    "worst_case",
+    "governing_check",
+    "utilisation",
+    "utilisation_drained",
+    "utilisation_blocked",
+    "utilisation_surveyed",
+    "state",
+    "outside_middle_third",
+    "over_allowable_bearing",
+    "lean_rate_deg_per_year",
+    "priority_score",
+    "priority_band",
+    "rank",
+)
+TEXT = {
+    "survey_date",
+    "material",
+    "foundation",
+    "drainage",
+    "consequence",
+    "name",
+    "worst_case",
+    "governing_check",
+    "state",
+    "priority_band",
+}
+INTEGER = {"rank", "outside_middle_third", "over_allowable_bearing"}
+
+
+def _sql_type(col: str) -> str:
+    return "TEXT" if col in TEXT else "INTEGER" if col in INTEGER else "REAL"
+
+
+def _gpkg_blob(geom: Any) -> bytes | None:
+    """A GeoPackage geometry blob: 'GP', version 0, flags (little endian, no envelope), SRS id, WKB."""
+    if geom is None:
+        return None
+    return b"GP" + bytes([0, 0b00000001]) + struct.pack("<i", SRS_ID) + shapely.to_wkb(geom, byte_order=1)
+
+
+def _create(path: Path) -> None:
+    """Create an empty history GeoPackage (atomically: no half-made file is ever visible)."""
+    import geopandas as gpd
+    import pyogrio
+
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".gpkg", dir=path.parent)
+    os.close(fd)
+    os.unlink(tmp)
+    try:
+        runs = pd.DataFrame(
+            {c: pd.Series(dtype="string" if t == "TEXT" else "int64") for c, t in RUN_COLUMNS.items()}
+        )
+        pyogrio.write_dataframe(runs, tmp, layer=RUNS, driver="GPKG")
+        cols = {"run_id": pd.Series(dtype="string"), "wall_id": pd.Series(dtype="string")}
+        for c in (*INPUT_COLUMNS, *RESULT_COLUMNS):
+            t = _sql_type(c)
+            cols[c] = pd.Series(dtype="string" if t == "TEXT" else "int64" if t == "INTEGER" else "float64")
+        layer = gpd.GeoDataFrame(cols, geometry=gpd.GeoSeries([], crs=f"EPSG:{SRS_ID}"))
+        layer.to_file(
+            tmp,
+            layer=WALLS,
+            driver="GPKG",
+            engine="pyogrio",
+            geometry_type="Unknown",
+            layer_options={"SPATIAL_INDEX": "NO"},
+        )
+        try:
+            os.link(tmp, path)  # fails if another process created it meanwhile: theirs stands
+        except FileExistsError:
+            pass
+    finally:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+
+
+def _connect(path: Path) -> sqlite3.Connection:
+    con = sqlite3.connect(path, timeout=60.0, isolation_level=None)
+    con.execute("PRAGMA busy_timeout = 60000")
+    return con
+
+
+@dataclass(frozen=True)
+class Recorded:
+    """What recording a run did."""
+
+    run_id: str
+    stored: bool
+    same_as: str | None = None
+    """The earlier run with the same input file content and settings, when not stored again."""
+
+
+def record_run(
+    path: str | Path,
+    *,
+    run: dict[str, Any],
+    walls: pd.DataFrame,
+    geometry: np.ndarray,
+) -> Recorded:
+    """Add a run and its walls to the history, in one transaction.
+
+    ``run`` has the keys of :data:`RUN_COLUMNS` (``run_id`` included). A run whose
+    input SHA-256 and settings equal an earlier run's is recognised and not stored again.
+    """
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    if not path.exists():
+        _create(path)
+    cols = ["run_id", "wall_id", *INPUT_COLUMNS, *RESULT_COLUMNS]
+    frame = walls.reindex(columns=[c for c in cols if c != "run_id"]).copy()
+    frame.insert(0, "run_id", run["run_id"])
+    if "survey_date" in frame:
+        frame["survey_date"] = pd.to_datetime(frame["survey_date"], errors="coerce").dt.strftime("%Y-%m-%d")
+    rows = []
+    for values, geom in zip(frame.itertuples(index=False, name=None), geometry, strict=True):
+        rows.append([_plain(v) for v in values] + [_gpkg_blob(geom)])
+    con = _connect(path)
+    try:
+        con.execute("BEGIN IMMEDIATE")
+        same = con.execute(
+            f"SELECT run_id FROM {RUNS} WHERE input_sha256 = ? AND settings_sha256 = ? ORDER BY fid LIMIT 1",
+            (run["input_sha256"], run["settings_sha256"]),
+        ).fetchone()
+        if same:
+            con.execute("ROLLBACK")
+            return Recorded(run["run_id"], stored=False, same_as=same[0])
+        names = ", ".join(f'"{c}"' for c in RUN_COLUMNS)
+        con.execute(
+            f"INSERT INTO {RUNS} ({names}) VALUES ({', '.join('?' * len(RUN_COLUMNS))})",
+            [_plain(run.get(c)) for c in RUN_COLUMNS],
+        )
+        names = ", ".join(f'"{c}"' for c in cols) + ', "geom"'
+        con.executemany(f"INSERT INTO {WALLS} ({names}) VALUES ({', '.join('?' * (len(cols) + 1))})", rows)
+        con.execute("COMMIT")
+    except sqlite3.Error as exc:
+        if con.in_transaction:
+            con.execute("ROLLBACK")
+        raise ScreeningError(f"{path}: could not record the run in the history ({exc})") from exc
+    finally:
+        con.close()
+    return Recorded(run["run_id"], stored=True)
+
+
+def _plain(v: Any) -> Any:
+    if v is None or v is pd.NA or v is pd.NaT:
+        return None
+    if isinstance(v, (np.bool_, bool)):
+        return int(v)
+    if isinstance(v, np.integer):
+        return int(v)
+    if isinstance(v, (np.floating, float)):
+        return None if np.isnan(v) else float(v)  # infinity is kept: SQLite stores it
+    return v
+
+
+def list_runs(path: str | Path) -> pd.DataFrame:
+    """Every run in the history, oldest first."""
+    path = Path(path)
+    if not path.exists():
+        return pd.DataFrame(columns=list(RUN_COLUMNS))
+    con = _connect(path)
+    try:
+        return pd.read_sql_query(f"SELECT {', '.join(RUN_COLUMNS)} FROM {RUNS} ORDER BY fid", con)
+    finally:
+        con.close()
+
+
+def run_walls(path: str | Path, run_id: str) -> pd.DataFrame:
+    """The walls of one run (without geometry)."""
+    cols = ["wall_id", *INPUT_COLUMNS, *RESULT_COLUMNS]
+    con = _connect(Path(path))
+    try:
+        frame = pd.read_sql_query(
+            f"SELECT {', '.join(chr(34) + c + chr(34) for c in cols)} FROM {WALLS} WHERE run_id = ?",
+            con,
+            params=(run_id,),
+        )
+    finally:
+        con.close()
+    for c in ("outside_middle_third", "over_allowable_bearing"):
+        frame[c] = frame[c].astype("boolean")
+    return frame
+
+
+def lean_points(path: str | Path | None) -> pd.DataFrame:
+    """(wall_id, survey_date, lean_deg, height_m) of every run in the history."""
+    if path is None or not Path(path).exists():
+        return pd.DataFrame(columns=["wall_id", "survey_date", "lean_deg", "height_m"])
+    con = _connect(Path(path))
+    try:
+        return pd.read_sql_query(
+            f"SELECT wall_id, survey_date, lean_deg, height_m FROM {WALLS} WHERE survey_date IS NOT NULL", con
+        )
+    finally:
+        con.close()
+
+
+def lean_rates(points: pd.DataFrame) -> pd.DataFrame:
+    """Least-squares rate of change of lean per wall from surveys at two or more dates.
+
+    Parameters
+    ----------
+    points : pandas.DataFrame
+        ``wall_id``, ``survey_date``, ``lean_deg``, ``height_m``; duplicate (wall, date)
+        pairs are averaged.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Indexed by ``wall_id``: ``lean_rate_deg_per_year``, ``lean_rate_mm_per_year`` (at the top
+        of the wall, small angles), ``lean_surveys`` (number of dates) and ``lean_span_years``.
+    """
+    p = points.dropna(subset=["wall_id", "survey_date", "lean_deg"]).copy()
+    p["t"] = (pd.to_datetime(p["survey_date"]) - pd.Timestamp("2000-01-01")).dt.days / 365.25
+    p = p.groupby(["wall_id", "t"], as_index=False).agg(
+        lean_deg=("lean_deg", "mean"), height_m=("height_m", "last")
+    )
+    g = p.groupby("wall_id")
+    n = g["t"].transform("size")
+    p = p[n >= 2].copy()
+    g = p.groupby("wall_id")
+    p["dt"] = p["t"] - g["t"].transform("mean")
+    p["dl"] = p["lean_deg"] - g["lean_deg"].transform("mean")
+    p["sxy"] = p["dt"] * p["dl"]
+    p["sxx"] = p["dt"] ** 2
+    agg = p.groupby("wall_id").agg(
+        sxy=("sxy", "sum"),
+        sxx=("sxx", "sum"),
+        n=("t", "size"),
+        span=("t", lambda t: t.max() - t.min()),
+        height=("height_m", "last"),
+    )
+    rate = agg["sxy"] / agg["sxx"].where(agg["sxx"] > 0)
+    return pd.DataFrame(
+        {
+            "lean_rate_deg_per_year": rate,
+            "lean_rate_mm_per_year": np.radians(rate) * agg["height"] * 1000.0,
+            "lean_surveys": agg["n"].astype(int),
+            "lean_span_years": agg["span"],
+        }
+    )
+
+
+# ------------------------------------------------------------------ comparison
+COMPARED_RESULTS = (
+    "utilisation",
+    "governing_check",
+    "outside_middle_third",
+    "over_allowable_bearing",
+    "priority_band",
+    "rank",
+)
+
+
+def compare(before: pd.DataFrame, after: pd.DataFrame, rejected: Sequence[str] = ()) -> pd.DataFrame:
+    """Per wall: added, removed or changed; which inputs changed (from → to); how results moved.
+
+    Both frames are per-wall tables with ``wall_id`` and the columns of
+    :data:`INPUT_COLUMNS` and :data:`COMPARED_RESULTS` (as in ``walls.csv``). Walls of
+    ``before`` whose rows were rejected in the later run are reported as ``rejected``,
+    not as removed.
+    """
+    a = before.drop_duplicates("wall_id").set_index("wall_id")
+    b = after.drop_duplicates("wall_id").set_index("wall_id")
+    ids = a.index.union(b.index, sort=False)
+    out = pd.DataFrame(index=pd.Index(ids, name="wall_id"))
+    out["status"] = np.where(~ids.isin(a.index), "added", np.where(~ids.isin(b.index), "removed", "kept"))
+    both = ids[ids.isin(a.index) & ids.isin(b.index)]
+    changes = pd.Series("", index=ids, dtype=object)
+    for col in INPUT_COLUMNS:
+        if col not in a or col not in b:
+            continue
+        x, y = a.loc[both, col], b.loc[both, col]
+        if col == "survey_date":
+            continue
+        xn, yn = pd.to_numeric(x, errors="coerce"), pd.to_numeric(y, errors="coerce")
+        if xn.notna().any() or yn.notna().any():
+            differ = ~np.isclose(xn.astype(float), yn.astype(float), rtol=0, atol=1e-6, equal_nan=True)
+            fmt = lambda v: "blank" if pd.isna(v) else f"{float(v):.4g}"  # noqa: E731
+        else:
+            differ = (x.fillna("").astype(str) != y.fillna("").astype(str)).to_numpy()
+            fmt = lambda v: "blank" if pd.isna(v) else str(v)  # noqa: E731
+        hit = both[differ]
+        text = [f"{col}: {fmt(a.at[w, col])} → {fmt(b.at[w, col])}" for w in hit]
+        changes.loc[hit] = [f"{c}; {t}" if c else t for c, t in zip(changes.loc[hit], text, strict=True)]
+    out["inputs_changed"] = changes
+    for col in COMPARED_RESULTS:
+        out[f"{col}_before"] = a[col].reindex(ids).to_numpy() if col in a else np.nan
+        out[f"{col}_after"] = b[col].reindex(ids).to_numpy() if col in b else np.nan
+    moved = pd.Series(False, index=ids)
+    for col in COMPARED_RESULTS:
+        x, y = out[f"{col}_before"], out[f"{col}_after"]
+        if col == "utilisation":
+            xn, yn = x.astype(float), y.astype(float)
+            moved |= ~np.isclose(xn, yn, rtol=1e-9, atol=1e-9, equal_nan=True)
+        elif col != "rank":
+            moved |= x.astype(str) != y.astype(str)
+    out["results_moved"] = moved & (out["status"] == "kept")
+    out.loc[(out["status"] == "kept") & ((out["inputs_changed"] != "") | out["results_moved"]), "status"] = (
+        "changed"
+    )
+    out.loc[out["status"] == "kept", "status"] = "unchanged"
+    out.loc[(out["status"] == "removed") & out.index.isin(list(rejected)), "status"] = "rejected"
+    order = {"added": 0, "removed": 1, "rejected": 2, "changed": 3, "unchanged": 4}
+    out = out.reset_index()
+    return out.sort_values(
+        ["status", "wall_id"], key=lambda s: s.map(order) if s.name == "status" else s, kind="stable"
+    ).reset_index(drop=True)
+
+
+def describe_change(row: pd.Series) -> str:
+    """One line for the map and the terminal."""
+    if row["status"] == "added":
+        return "new in this run"
+    if row["status"] == "removed":
+        return "no longer in the register"
+    if row["status"] == "rejected":
+        return "its row was rejected in this run (see the problems)"
+    parts = []
+    if row["inputs_changed"]:
+        parts.append(row["inputs_changed"])
+    if row.get("priority_band_before") != row.get("priority_band_after"):
+        parts.append(f"band {row['priority_band_before']} → {row['priority_band_after']}")
+    ub, ua = row.get("utilisation_before"), row.get("utilisation_after")
+    if ub is not None and ua is not None and not (pd.isna(ub) and pd.isna(ua)) and ub != ua:
+        parts.append(f"utilisation {_u(ub)} → {_u(ua)}")
+    return "; ".join(parts)
+
+
+def _u(v: Any) -> str:
+    if v is None or pd.isna(v):
+        return "∞"
+    return f"{float(v):.2f}"
+
+
+def settings_digest(settings: dict[str, Any]) -> str:
+    import hashlib
+
+    return hashlib.sha256(json.dumps(settings, sort_keys=True, default=str).encode()).hexdigest()
