@@ -394,17 +394,43 @@ def map_command(
 @app.command()
 def demo(
     out: Annotated[Path, typer.Option("--out", "-o", help="Folder for the outputs")] = Path("maps"),
+    map_assets_url: AssetsUrlOpt = None,
+    map_assets_dir: AssetsDirOpt = None,
+    map_tiles: TilesOpt = None,
 ) -> None:
-    """Run the whole job on the bundled, invented Harrowby Vale register."""
+    """Run the whole job on the bundled, invented Harrowby Vale register (two surveys)."""
+    from rich.progress import Progress as Bar
+    from rich.progress import SpinnerColumn, TextColumn, TimeElapsedColumn
+
     from screening.demo import run_demo
 
     try:
-        job = run_demo(out)
+        with Bar(
+            SpinnerColumn(),
+            TextColumn("{task.description}"),
+            TimeElapsedColumn(),
+            console=console,
+            transient=True,
+        ) as bar:
+            task = bar.add_task("starting", total=None)
+            job = run_demo(
+                out,
+                progress=lambda name: bar.update(task, description=name),
+                map_options=MapOptions(map_assets_url, map_assets_dir, map_tiles),
+            )
     except ScreeningError as exc:
         raise _fail(exc) from None
+    console.print(
+        "[bold]Demo: the invented Harrowby Vale register[/] (two surveys, a year apart). It carries a few "
+        "deliberate data-entry mistakes: the rows marked 'error' below were rejected, the rest screened."
+    )
     _print_problems(job)
     _print_summary(job)
-    console.print(
-        "The sample register carries a few deliberate data-entry mistakes; the rows above "
-        "marked 'error' were rejected and the rest screened."
-    )
+    top = str(job.walls["wall_id"].iloc[0])
+    first_sheet = job.sheets.get(top)
+    console.print("\n[bold]Open first[/]")
+    console.print(f"  the map          {out / 'map.html'}")
+    console.print(f"  the workbook     {out / 'report.xlsx'}  (sheet 'Look first')")
+    if first_sheet:
+        console.print(f"  a calc sheet     {out / first_sheet}  (rank 1, {escape(top)})")
+    console.print(f"  what changed     {out / 'changes.csv'}")

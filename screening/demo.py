@@ -1,24 +1,47 @@
-"""``wallscreen demo``: the whole job on the bundled, invented sample register."""
+"""``wallscreen demo``: the whole job on the bundled, invented sample register.
+
+Two surveys of the invented Harrowby Vale register: the 2025 survey is recorded
+in the run history, then the 2026 survey is validated, screened, ranked and
+written out in full (workbook, GeoPackage, map, calculation sheets for the
+flagged walls) with the comparison against 2025.
+"""
 
 from __future__ import annotations
 
 from pathlib import Path
 
-from screening.job import JobResult, screen_file, write_outputs
+from screening.job import JobResult, MapOptions, record_history, screen_file, write_outputs
+from screening.progress import Progress
+from screening.sheets import flagged_walls
 
 SAMPLE = Path(__file__).resolve().parents[1] / "sample_inventory"
 
 
-def sample_paths() -> tuple[Path, Path]:
-    """The 2026 survey of the sample register and its mapping file."""
-    register = SAMPLE / "register_2026.xlsx"
-    mapping = SAMPLE / "mapping.toml"
-    return register, mapping
+def sample_paths(year: int = 2026) -> tuple[Path, Path]:
+    """A survey of the sample register and its mapping file."""
+    return SAMPLE / f"register_{year}.xlsx", SAMPLE / "mapping.toml"
 
 
-def run_demo(out_dir: str | Path) -> JobResult:
-    """Screen the sample register and write every output into ``out_dir``."""
-    register, mapping = sample_paths()
-    job = screen_file(register, mapping=mapping)
-    write_outputs(job, out_dir)
+def run_demo(
+    out_dir: str | Path, *, progress: Progress | None = None, map_options: MapOptions | None = None
+) -> JobResult:
+    """Screen both sample surveys and write every output of the second into ``out_dir``."""
+    step = progress or (lambda _name: None)
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    history = out / "history.gpkg"
+    step("screening the 2025 survey")
+    first_register, mapping = sample_paths(2025)
+    first = screen_file(first_register, mapping=mapping, history=history)
+    record_history(first)
+    step("screening the 2026 survey")
+    register, mapping = sample_paths(2026)
+    job = screen_file(register, mapping=mapping, history=history)
+    write_outputs(
+        job,
+        out,
+        progress=step,
+        map_options=map_options,
+        sheet_ids=flagged_walls(job.screening.results),
+    )
     return job

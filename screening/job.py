@@ -5,7 +5,6 @@ from __future__ import annotations
 import datetime as dt
 import hashlib
 import json
-from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -19,8 +18,7 @@ from screening.io import LoadedRegister, load_register
 from screening.io.locate import locate
 from screening.io.writers import write_csv, write_text_atomic
 from screening.pipeline import RESULT_COLUMNS, Screening, evaluate
-
-Progress = Callable[[str], None]
+from screening.progress import Progress
 
 
 @dataclass

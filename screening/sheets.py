@@ -12,6 +12,8 @@ import base64
 import html
 import io
 import math
+import multiprocessing as mp
+import os
 from collections.abc import Iterable
 from pathlib import Path
 from typing import Any
@@ -107,9 +109,7 @@ def _figure(wall: pd.Series, d: dict[str, np.ndarray], j: dict[str, int], cfg: C
         if back > 0 and r > 0:
             wedge = [rot(b, 0), rot(b, r), rot(b - back * r / h, r)]
             ax.add_patch(
-                Polygon(
-                    wedge, closed=True, fc="#E6D9B8", ec="#8A7A50", lw=0.8, hatch="..", label="soil carried"
-                )
+                Polygon(wedge, closed=True, fc="#E6D9B8", ec="#8A7A50", lw=0.8, label="soil carried")
             )
         ax.plot([b, b + 0.8 * b + 1], [r, r], color="#8A7A50", lw=1.0)
         ax.plot([b, b], [0, r], color="#8A7A50", lw=0.8, ls=":")
@@ -192,7 +192,7 @@ def _figure(wall: pd.Series, d: dict[str, np.ndarray], j: dict[str, int], cfg: C
                 handles.append(hnd)
                 labels.append(lab)
     fig.legend(handles, labels, loc="lower center", ncol=len(labels), fontsize=8, frameon=False)
-    fig.tight_layout(rect=(0, 0.06, 1, 1))
+    fig.subplots_adjust(left=0.05, right=0.99, top=0.93, bottom=0.2, wspace=0.06)
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=80)
     return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii")
@@ -552,8 +552,6 @@ def write_sheets(
     on just these walls with ``details=True``, which gives the very numbers of the bulk run
     (the engine is element-wise).
     """
-    from screening.job import sheet_filename
-
     ids = [str(w) for w in wall_ids]
     sub = walls[walls["wall_id"].astype(str).isin(ids)].reset_index(drop=True)
     if sub.empty:
@@ -572,14 +570,34 @@ def write_sheets(
     d["_w_base"] = config.gamma_w_kn_m3 * hw
     folder = Path(out_dir) / "sheets"
     folder.mkdir(parents=True, exist_ok=True)
-    written: dict[str, str] = {}
-    for pos in range(n):
-        wall = sub.iloc[pos]
-        j = {case: pos + c * n for c, case in enumerate(CASES)}
-        wid = str(wall["wall_id"])
-        own = assumptions[assumptions["wall_id"].astype(str) == wid]
-        page = sheet_html(wall, d, j, own, config, provenance, with_figure)
-        name = sheet_filename(wid)
-        write_text_atomic(folder / name, page)
-        written[wid] = f"sheets/{name}"
-    return written
+    global _JOB
+    _JOB = (sub, d, assumptions, config, provenance, with_figure, folder)
+    try:
+        if n >= 8 and "fork" in mp.get_all_start_methods() and (os.cpu_count() or 1) > 1:
+            # drawing the figures dominates: share the work among the cores (forked
+            # workers inherit the job, nothing is pickled but the wall positions)
+            with mp.get_context("fork").Pool(min(os.cpu_count() or 1, 4)) as pool:
+                pairs = pool.map(_write_one, range(n), chunksize=4)
+        else:
+            pairs = [_write_one(pos) for pos in range(n)]
+    finally:
+        _JOB = None
+    return dict(pairs)
+
+
+_JOB: Any = None
+
+
+def _write_one(pos: int) -> tuple[str, str]:
+    from screening.job import sheet_filename
+
+    sub, d, assumptions, config, provenance, with_figure, folder = _JOB
+    n = len(sub)
+    wall = sub.iloc[pos]
+    j = {case: pos + c * n for c, case in enumerate(CASES)}
+    wid = str(wall["wall_id"])
+    own = assumptions[assumptions["wall_id"].astype(str) == wid]
+    page = sheet_html(wall, d, j, own, config, provenance, with_figure)
+    name = sheet_filename(wid)
+    write_text_atomic(folder / name, page)
+    return wid, f"sheets/{name}"
