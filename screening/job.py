@@ -315,6 +315,18 @@ def rerender_map(results_dir: str | Path, options: MapOptions | None = None) -> 
         for w in walls["wall_id"]
         if (folder / "sheets" / sheet_filename(str(w))).exists()
     }
+    layers = {}
+    if (folder / "changes.csv").exists():
+        from screening.history import describe_change
+
+        changes = pd.read_csv(
+            folder / "changes.csv", dtype={"wall_id": str}, keep_default_na=False, na_values=[""]
+        )
+        changes["inputs_changed"] = changes["inputs_changed"].fillna("")
+        moved = changes[changes["status"].isin(["changed", "added"])]
+        layers["Changed since the last run"] = {
+            str(r["wall_id"]): describe_change(r) for _, r in moved.iterrows()
+        }
     options = options or MapOptions()
     page = build_map(
         walls,
@@ -328,6 +340,7 @@ def rerender_map(results_dir: str | Path, options: MapOptions | None = None) -> 
         assets_url=options.assets_url,
         assets_dir=options.assets_dir,
         tiles=options.tiles,
+        extra_layers=layers,
     )
     return write_map(page, folder / "map.html")
 

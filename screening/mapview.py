@@ -274,7 +274,7 @@ def write_map(page: MapPage, target: str | Path) -> Path:
 
 
 _CSS = """
-#ws-info { position: absolute; top: 10px; left: 56px; z-index: 1000; max-width: 440px;
+#ws-info { position: absolute; bottom: 52px; left: 10px; z-index: 1000; max-width: 440px;
   background: rgba(255,255,255,0.94); padding: 8px 12px; border-radius: 4px;
   font: 13px/1.35 system-ui, sans-serif; box-shadow: 0 1px 4px rgba(0,0,0,0.3); }
 #ws-info .ws-title { font-weight: 600; font-size: 15px; }
@@ -370,7 +370,8 @@ _JS = r"""
       onEachFeature: function (f, layer) {
         layers[f.properties.id.toLowerCase()] = layer;
         layer.bindTooltip(function () { return tooltip(f.properties); }, {sticky: true});
-        layer.bindPopup(function () { return popup(f.properties); }, {maxWidth: 460});
+        layer.bindPopup(function () { return popup(f.properties); },
+          {maxWidth: 460, autoPanPaddingBottomRight: L.point(20, 180)});
       }
     });
     built[name] = {layer: g, byId: layers};
@@ -450,7 +451,7 @@ _JS = r"""
   };
   search.addTo(map);
   if (data.features.length) {
-    map.fitBounds(S.bounds, {paddingTopLeft: [20, 170], paddingBottomRight: [20, 20]});
+    map.fitBounds(S.bounds, {paddingTopLeft: [20, 20], paddingBottomRight: [20, 170]});
   }
   window.wallscreenMap = {map: map, built: built, count: data.features.length};
 })();

@@ -147,6 +147,7 @@ class _Formats:
         self.num2 = book.add_format({"num_format": "0.00"})
         self.num3 = book.add_format({"num_format": "0.000"})
         self.int = book.add_format({"num_format": "0"})
+        self.right = book.add_format({"align": "right"})
         self.wrap = book.add_format({"text_wrap": True, "valign": "top"})
         self.title = book.add_format({"bold": True, "font_size": 14})
         self.bold = book.add_format({"bold": True})
@@ -181,7 +182,7 @@ def _cell(sheet: Worksheet, r: int, c: int, value: Any, kind: str, f: _Formats) 
     else:
         v = float(value)
         if math.isinf(v):
-            sheet.write_string(r, c, "∞" if v > 0 else "-∞")
+            sheet.write_string(r, c, "∞" if v > 0 else "-∞", f.right)
         else:
             sheet.write_number(r, c, v, getattr(f, kind if kind in ("num2", "num3", "int") else "num2"))
 
@@ -217,15 +218,20 @@ def _table(
 
 
 def _colour_utilisation(
-    sheet: Worksheet, frame: pd.DataFrame, cols: Sequence[tuple[str, str, str]], f: _Formats
+    sheet: Worksheet,
+    frame: pd.DataFrame,
+    cols: Sequence[tuple[str, str, str]],
+    f: _Formats,
+    start_row: int = 0,
 ) -> None:
     names = [c[0] for c in cols if c[0] in frame.columns]
     n = len(frame)
     if n == 0:
         return
+    first, last = start_row + 1, start_row + n
     for c, name in enumerate(names):
         if "utilisation" in name:
-            rng = (1, c, n, c)
+            rng = (first, c, last, c)
             # an infinite utilisation is written as the text "∞"
             sheet.conditional_format(
                 *rng, {"type": "text", "criteria": "containing", "value": "∞", "format": f.over}
@@ -237,9 +243,9 @@ def _colour_utilisation(
         if name == "priority_band":
             for band, fmt in f.band.items():
                 sheet.conditional_format(
-                    1,
+                    first,
                     c,
-                    n,
+                    last,
                     c,
                     {"type": "text", "criteria": "begins with", "value": BAND_LABELS[band], "format": fmt},
                 )
@@ -293,9 +299,14 @@ def write_workbook(
             first = walls.head(min(look_first, max(10, len(first))))
         sheet = book.add_worksheet("Look first")
         sheet.write_string(
-            0, 0, f"The {len(first)} walls to look at first (of {len(walls)} screened)", f.title
+            0,
+            0,
+            f"The {len(first)} walls to look at first, of {len(walls)} screened "
+            "(the band 'Inspect first', and at least the top ten)",
+            f.title,
         )
-        sheet.write_string(1, 0, CAUTION, f.caution)
+        sheet.set_row(1, 32)
+        sheet.merge_range(1, 0, 1, 7, CAUTION, f.caution)
         short = [
             c
             for c in SUMMARY_COLUMNS
@@ -312,6 +323,7 @@ def write_workbook(
             )
         ]
         _table(sheet, first, short, f, widths={"reason": 90, "name": 30}, start_row=3)
+        _colour_utilisation(sheet, first, short, f, start_row=3)
 
         if changes is not None:
             sheet = book.add_worksheet("Changes since last run")

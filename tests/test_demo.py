@@ -21,8 +21,18 @@ def test_demo_writes_every_output_consistently(tmp_path: Path) -> None:
     out = tmp_path / "maps"
     result = runner.invoke(app, ["demo", "--out", str(out)])
     assert result.exit_code == 0, result.output
-    for name in ("map.html", "report.xlsx", "walls.gpkg", "walls.csv", "results.csv", "problems.csv",
-                 "assumptions.csv", "changes.csv", "history.gpkg", "run.json"):
+    for name in (
+        "map.html",
+        "report.xlsx",
+        "walls.gpkg",
+        "walls.csv",
+        "results.csv",
+        "problems.csv",
+        "assumptions.csv",
+        "changes.csv",
+        "history.gpkg",
+        "run.json",
+    ):
         assert (out / name).exists(), name
     assert "Open first" in result.output and "map.html" in result.output
 
@@ -54,4 +64,6 @@ def test_demo_writes_every_output_consistently(tmp_path: Path) -> None:
     assert "Changed since the last run" in html
     # the validation report: the deliberate mistakes
     problems = pd.read_csv(out / "problems.csv")
-    assert {"HV-017", "HV-044", "HV-063", "HV-081", "HV-095"} <= set(problems.loc[problems.severity == "error", "wall_id"])
+    assert {"HV-017", "HV-044", "HV-063", "HV-081", "HV-095"} <= set(
+        problems.loc[problems.severity == "error", "wall_id"]
+    )
