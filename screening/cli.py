@@ -61,7 +61,7 @@ TilesOpt = Annotated[
 
 
 def _fail(exc: ScreeningError) -> typer.Exit:
-    err.print(f"[bold red]error:[/] {exc}", highlight=False, markup=True)
+    err.print(f"[bold red]error:[/] {escape(str(exc))}", highlight=False, markup=True)
     return typer.Exit(EXIT_NOTHING_SCREENED)
 
 
@@ -206,6 +206,8 @@ def _screen_with_progress(
         job = screen_file(register, mapping=mapping, sheet=sheet, config=cfg, history=history)
         if len(job.walls) == 0:
             _print_problems(job)
+            if job.screening.prepared.n_read == 0:
+                raise ScreeningError(f"{register}: no wall rows below the header")
             raise ScreeningError(f"{register}: no row could be screened")
         if out is not None:
             write_outputs(
@@ -272,8 +274,11 @@ def check(
     if errors_file is not None:
         write_csv(problems, errors_file)
         console.print(f"problems written to {errors_file}")
-    ok = job.screening.prepared.n_read - job.n_rejected
-    console.print(f"{ok} of {job.screening.prepared.n_read} rows can be screened.")
+    n_read = job.screening.prepared.n_read
+    if n_read == 0:
+        raise _fail(ScreeningError(f"{register}: no wall rows below the header"))
+    ok = n_read - job.n_rejected
+    console.print(f"{ok} of {n_read} rows can be screened.")
     if ok == 0:
         raise typer.Exit(EXIT_NOTHING_SCREENED)
     if job.n_rejected:
@@ -374,6 +379,19 @@ def compare(
     console.print(f"Changes {escape(label)}:")
     print_changes(changes)
     console.print(f"written to {out}")
+
+
+@app.command()
+def template(
+    target: Annotated[Path, typer.Argument(help="The workbook to write, e.g. register.xlsx")],
+) -> None:
+    """Write a blank register: canonical headers with notes, drop-down lists, and a guide sheet."""
+    from screening.io.template import write_template
+
+    if target.suffix.lower() != ".xlsx":
+        raise _fail(ScreeningError(f"{target}: the template is an .xlsx workbook"))
+    write_template(target)
+    console.print(f"template written to {target}")
 
 
 @app.command("map")

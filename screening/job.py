@@ -114,6 +114,17 @@ def screen_file(
     )
     accepted = run.prepared.walls
     geometry, geo_problems = locate(accepted, loaded.mapping.crs or loaded.raw.crs)
+    header_problems = pd.DataFrame(
+        {
+            "row": loaded.raw.header_row,
+            "wall_id": "",
+            "column": [h for h, _ in loaded.raw.header_warnings],
+            "value": "",
+            "severity": "warning",
+            "message": [m for _, m in loaded.raw.header_warnings],
+        }
+    )
+    geo_problems = pd.concat([header_problems, geo_problems], ignore_index=True)
     if len(geo_problems):
         run = Screening(
             run.prepared,

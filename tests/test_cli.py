@@ -115,3 +115,12 @@ def test_sample_register_with_mapping(tmp_path: Path) -> None:
 def test_python_dash_m_runs_the_same_cli() -> None:
     out = subprocess.run([sys.executable, "-m", "screening", "--version"], capture_output=True, text=True)
     assert out.returncode == 0 and "wallscreen" in out.stdout
+
+
+def test_register_text_is_printed_literally(tmp_path: Path) -> None:
+    # rich markup in a register must not be interpreted by the terminal output
+    reg = _csv(tmp_path, [worked_wall("[bold]X[/bold]", 2.0, top_width_m=3.0), worked_wall("OK", 2.0)])
+    result = runner.invoke(app, ["check", str(reg)])
+    assert "[bold]X[/bold]" in result.output
+    result = runner.invoke(app, ["run", str(tmp_path / "[red]missing.csv")])
+    assert "[red]missing.csv" in result.output

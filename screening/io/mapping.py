@@ -176,6 +176,13 @@ def to_canonical(
     shown = out.copy()
     if unmapped:
         raw.notes.append("columns not used: " + ", ".join(unmapped))
+        free = [c for c in schema.COLUMNS if c not in out]
+        for header in unmapped:
+            hint = _suggest(header, free)
+            if hint:
+                raw.header_warnings.append(
+                    (header, f"column not used: not a canonical name nor in the mapping file{hint}")
+                )
 
     for column, table in mapping.values.items():
         if column in out:

@@ -48,6 +48,8 @@ class RawRegister:
     header_row: int = 1
     crs: str | None = None
     notes: list[str] = field(default_factory=list)
+    header_warnings: list[tuple[str, str]] = field(default_factory=list)
+    """(header, message) for columns that look like a misspelt canonical name."""
 
 
 def read_register(
@@ -216,7 +218,10 @@ def _read_spreadsheet(path: Path, sheet: str | int | None, known: set[str]) -> R
     else:
         raise RegisterError(f"{path}: no sheet named {sheet!r}; the sheets are {names}")
     try:
-        grid = pd.read_excel(book, sheet_name=chosen, header=None, dtype=object)
+        # keep every cell as written ("n/a", "NA"...): the validator names what it cannot use
+        grid = pd.read_excel(
+            book, sheet_name=chosen, header=None, dtype=object, keep_default_na=False, na_values=[]
+        )
     except Exception as exc:  # a damaged sheet inside a readable workbook
         raise RegisterError(f"{path}: sheet {chosen!r} could not be read ({exc})") from exc
     finally:

@@ -1,0 +1,101 @@
+"""``wallscreen template``: a blank register an owner can fill in."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import xlsxwriter
+
+from screening import schema
+from screening.config import Config
+from screening.io.writers import write_atomic
+
+ROWS_WITH_LISTS = 5000
+"""Rows below the header that get drop-down lists for coded columns."""
+
+
+def write_template(target: str | Path, config: Config | None = None) -> Path:
+    """A workbook with a 'Walls' sheet (canonical headers with notes, drop-down lists for coded
+    columns) and a 'Guide' sheet describing every column. Reads back with no mapping file."""
+    config = config or Config()
+    coded = {k: list(v) if v else list(config.consequence_weight) for k, v in schema.CODED.items()}
+
+    def build(tmp: Path) -> None:
+        book = xlsxwriter.Workbook(str(tmp), {"strings_to_formulas": False})
+        head = book.add_format({"bold": True, "bg_color": "#E8E8E8", "border": 1})
+        required = book.add_format({"bold": True, "bg_color": "#F4CCCC", "border": 1})
+        walls = book.add_worksheet("Walls")
+        lists = book.add_worksheet("Lists")
+        for c, name in enumerate(schema.COLUMNS):
+            walls.write_string(0, c, name, required if name in schema.REQUIRED else head)
+            walls.set_column(c, c, max(12, len(name) + 2))
+            unit = schema.UNITS.get(name, "")
+            note = f"{schema.DESCRIPTIONS[name]}" + (f" [{unit}]" if unit else "")
+            if name in schema.REQUIRED:
+                note += " (required)"
+            walls.write_comment(0, c, note, {"x_scale": 2, "y_scale": 1.2})
+            if name in coded:
+                values = coded[name]
+                col = list(coded).index(name)
+                for r, v in enumerate(values):
+                    lists.write_string(r, col, v)
+                letter = xlsxwriter.utility.xl_col_to_name(col)
+                walls.data_validation(
+                    1,
+                    c,
+                    ROWS_WITH_LISTS,
+                    c,
+                    {
+                        "validate": "list",
+                        "source": f"=Lists!${letter}$1:${letter}${len(values)}",
+                        "error_title": name,
+                        "error_message": "Choose one of: " + ", ".join(values),
+                    },
+                )
+            elif name in schema.NUMERIC:
+                walls.data_validation(
+                    1,
+                    c,
+                    ROWS_WITH_LISTS,
+                    c,
+                    {
+                        "validate": "decimal",
+                        "criteria": "between",
+                        "minimum": -1e9,
+                        "maximum": 1e9,
+                        "error_title": name,
+                        "error_message": f"A number in {unit or 'the unit shown'}",
+                    },
+                )
+        walls.freeze_panes(1, 1)
+        lists.hide()
+        guide = book.add_worksheet("Guide")
+        guide.set_column(0, 0, 34)
+        guide.set_column(1, 1, 22)
+        guide.set_column(2, 2, 10)
+        guide.set_column(3, 3, 90)
+        for c, text in enumerate(("column", "unit or values", "required", "meaning")):
+            guide.write_string(0, c, text, head)
+        for r, name in enumerate(schema.COLUMNS, start=1):
+            shown = ", ".join(coded[name]) if name in coded else schema.UNITS.get(name, "")
+            guide.write_string(r, 0, name)
+            guide.write_string(r, 1, shown)
+            guide.write_string(r, 2, "yes" if name in schema.REQUIRED else "")
+            guide.write_string(r, 3, schema.DESCRIPTIONS[name])
+        r = len(schema.COLUMNS) + 2
+        guide.write_string(
+            r,
+            0,
+            "Blanks are filled from documented defaults, each recorded per wall; "
+            "give one location form (lat/lon, easting/northing or geometry).",
+        )
+        guide.write_string(
+            r + 1,
+            0,
+            "Screening aid only: results must be reviewed by a qualified engineer; "
+            "local codes and the asset owner's standards govern.",
+        )
+        walls.activate()
+        book.close()
+
+    return write_atomic(target, build)
