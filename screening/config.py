@@ -128,6 +128,10 @@ class Config:
     about 0.2° between surveys a year apart cannot be told from survey scatter."""
     condition_default: Default = Default(3.0, "not recorded: middle of the 1-5 scale assumed")
     priority: PrioritySettings = field(default_factory=PrioritySettings)
+    # --- outputs
+    workbook_full_results_limit: int = 1_000
+    """Registers with more walls keep only this many walls, first in the ranking, on the
+    workbook's per-case sheet (results.csv always has every wall)."""
     # --- run
     chunk_size: int = 200_000
     """Walls screened per pass; larger registers are processed in chunks."""

@@ -287,6 +287,7 @@ def write_outputs(
         settings=job.info.config.to_dict(),
         provenance=provenance(job),
         changes=job.changes,
+        full_results_limit=job.info.config.workbook_full_results_limit,
     )
     step("GeoPackage")
     outputs["geopackage"] = write_geopackage(job.walls, job.geometry, out / "walls.gpkg")

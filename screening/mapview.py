@@ -64,90 +64,80 @@ def margin_colours() -> list[str]:
     return [c[1] for c in MARGIN_CLASSES] + [OVERTURNS_COLOUR]
 
 
-def _num(values: Any, digits: int) -> list[Any]:
-    """Rounded numbers for JSON; None for NaN and infinity (the state says why)."""
-    a = np.round(np.asarray(values, dtype=float), digits)
-    return [None if not np.isfinite(v) else float(v) for v in a]
+def _rounded(values: Any, digits: int) -> list[float]:
+    """Rounded floats for the page; NaN and infinity stay (valid JavaScript literals)."""
+    return np.round(np.asarray(values, dtype=float), digits).tolist()
 
 
-def _coordinates(geometry: np.ndarray) -> list[Any]:
-    """GeoJSON geometry dicts with 6-decimal coordinates (about 0.1 m)."""
-    geoms = np.asarray(geometry, dtype=object)
-    coords, index = shapely.get_coordinates(geoms, return_index=True)
-    coords = np.round(coords, 6)
-    splits = np.split(coords, np.flatnonzero(np.diff(index)) + 1) if len(coords) else []
-    kinds = shapely.get_type_id(geoms)
-    out = []
-    for kind, part in zip(kinds, splits, strict=True):
-        if kind == 0:  # Point
-            out.append({"type": "Point", "coordinates": part[0].tolist()})
-        else:  # LineString (a MultiLineString is drawn as one line through its parts)
-            out.append({"type": "LineString", "coordinates": part.tolist()})
-    return out
+def _codes(values: Any) -> tuple[list[int], list[str]]:
+    """Small integer codes and their names (the page looks the words up)."""
+    codes, names = pd.factorize(pd.Series(np.asarray(values, dtype=object)).fillna(""), sort=True)
+    return codes.tolist(), [str(n) for n in names]
 
 
-def feature_collection(
+def map_data(
     walls: pd.DataFrame,
     geometry: np.ndarray,
     results: pd.DataFrame,
     sheets: dict[str, str] | None = None,
 ) -> dict[str, Any]:
-    """The map's data: located walls with their figures per case in compact properties.
+    """The map's data, column-wise: one list per property, walls in ranking order.
 
-    Property keys: ``id``, ``name``, ``band``, ``score``, ``reason``, ``rank``, ``worst`` (case
-    index) and per case (arrays in the order of ``CASES``): ``u`` utilisation, ``cls`` colour
-    class, ``gov`` governing check, ``st`` state, ``e`` eccentricity, ``q`` toe pressure,
-    ``fs``/``fo`` factors of safety; and ``b6`` (B/6), ``qa`` (allowable), ``sheet``.
+    Located walls only. ``xy`` holds every vertex (lon, lat, 6 decimals, about 0.1 m) one after
+    another and ``off`` where each wall's vertices start (a wall with one vertex is a point).
+    Per-case lists (``u`` utilisation, ``cls`` colour class, ``gov`` governing check, ``st``
+    state, ``e`` eccentricity, ``q`` toe pressure, ``fs``/``fo`` factors of safety) hold one
+    list per case in the order of ``cases``. Register text is kept as data, never markup.
     """
     located = walls["located"].to_numpy(dtype=bool)
     w = walls[located].reset_index(drop=True)
     geoms = np.asarray(geometry, dtype=object)[located]
-    by_case = {
-        case: results[results["case"] == case].set_index("wall_id").reindex(w["wall_id"]) for case in CASES
-    }
+    coords, index = shapely.get_coordinates(geoms, return_index=True)
+    counts = np.bincount(index, minlength=len(w)) if len(w) else np.zeros(0, dtype=int)
+    off = np.concatenate([[0], np.cumsum(2 * counts)]).astype(int)
+    by_case = {c: results[results["case"] == c].set_index("wall_id").reindex(w["wall_id"]) for c in CASES}
+    gov, gov_names = _codes(
+        np.concatenate([by_case[c]["governing_check"].to_numpy(dtype=object) for c in CASES])
+    )
+    st, st_names = _codes(np.concatenate([by_case[c]["state"].to_numpy(dtype=object) for c in CASES]))
+    n = len(w)
 
-    def per_case(col: str, digits: int | None = None) -> list[list[Any]]:
-        cols = [
-            _num(by_case[c][col], digits) if digits is not None else by_case[c][col].astype(str).tolist()
-            for c in CASES
-        ]
-        return [list(t) for t in zip(*cols, strict=True)]
+    def split(codes: list[int]) -> list[list[int]]:
+        return [codes[k * n : (k + 1) * n] for k in range(len(CASES))]
 
-    cls = [margin_class(by_case[c]["utilisation"], by_case[c]["state"]).tolist() for c in CASES]
-    cls_t = [list(t) for t in zip(*cls, strict=True)]
-    worst = pd.Categorical(w["worst_case"], categories=CASES).codes.tolist()
-    cols = {
+    band, band_names = _codes(w["priority_band"])
+    return {
+        "cases": list(CASES),
         "id": w["wall_id"].astype(str).tolist(),
         "name": [("" if pd.isna(v) else str(v)) for v in w["name"]],
-        "band": w["priority_band"].astype(str).tolist(),
-        "score": _num(w["priority_score"], 1),
         "rank": w["rank"].astype(int).tolist(),
+        "score": _rounded(w["priority_score"], 1),
+        "band": band,
+        "bandNames": band_names,
         "reason": w["reason"].astype(str).tolist(),
-        "worst": worst,
-        "u": per_case("utilisation", 3),
-        "cls": cls_t,
-        "gov": per_case("governing_check"),
-        "st": per_case("state"),
-        "e": per_case("eccentricity_m", 3),
-        "q": per_case("toe_pressure_kpa", 1),
-        "fs": per_case("fos_sliding", 2),
-        "fo": per_case("fos_overturning", 2),
-        "b6": _num(w["base_width_m"] / 6.0, 3),
-        "qa": _num(w["allowable_bearing_kpa"], 0),
+        "worst": pd.Categorical(w["worst_case"], categories=CASES).codes.tolist(),
+        "b6": _rounded(w["base_width_m"] / 6.0, 3),
+        "qa": _rounded(w["allowable_bearing_kpa"], 0),
         "sheet": [(sheets or {}).get(i, "") for i in w["wall_id"].astype(str)],
+        "xy": np.round(coords, 6).ravel().tolist(),
+        "off": off.tolist(),
+        "u": [_rounded(by_case[c]["utilisation"], 3) for c in CASES],
+        "cls": [margin_class(by_case[c]["utilisation"], by_case[c]["state"]).tolist() for c in CASES],
+        "gov": split(gov),
+        "govNames": gov_names,
+        "st": split(st),
+        "stNames": st_names,
+        "e": [_rounded(by_case[c]["eccentricity_m"], 3) for c in CASES],
+        "q": [_rounded(by_case[c]["toe_pressure_kpa"], 1) for c in CASES],
+        "fs": [_rounded(by_case[c]["fos_sliding"], 2) for c in CASES],
+        "fo": [_rounded(by_case[c]["fos_overturning"], 2) for c in CASES],
     }
-    names = list(cols)
-    features = [
-        {"type": "Feature", "geometry": g, "properties": dict(zip(names, values, strict=True))}
-        for g, values in zip(_coordinates(geoms), zip(*cols.values(), strict=True), strict=True)
-    ]
-    return {"type": "FeatureCollection", "features": features}
 
 
 def _script_json(value: Any) -> str:
-    """JSON safe to place inside a <script> element."""
+    """A JavaScript literal safe to place inside a <script> element (NaN and Infinity allowed)."""
     return (
-        json.dumps(value, ensure_ascii=False, separators=(",", ":"))
+        json.dumps(value, ensure_ascii=False, separators=(",", ":"), allow_nan=True)
         .replace("<", "\\u003c")
         .replace(">", "\\u003e")
         .replace("&", "\\u0026")
@@ -184,10 +174,10 @@ def build_map(
     extra_layers : dict, optional
         Name -> {wall id: text} overlays (e.g. "changed since the last survey").
     """
-    data = feature_collection(walls, geometry, results, sheets)
-    n = len(data["features"])
+    data = map_data(walls, geometry, results, sheets)
+    n = len(data["id"])
     if n:
-        xy = np.array([c for f in data["features"] for c in _flat(f["geometry"])])
+        xy = np.asarray(data["xy"]).reshape(-1, 2)
         bounds = [[xy[:, 1].min(), xy[:, 0].min()], [xy[:, 1].max(), xy[:, 0].max()]]
     else:
         bounds = [[-60, -170], [75, 170]]
@@ -235,6 +225,7 @@ def build_map(
         "bandText": [BAND_LABELS[b] for b in BANDS],
         "bounds": bounds,
         "extra": extra_layers or {},
+        "canvas": n > CANVAS_FROM,
     }
     root.header.add_child(folium.Element(f"<style>{_CSS}</style>"))
     root.html.add_child(folium.Element(info))
@@ -244,11 +235,6 @@ def build_map(
         .replace("__SETTINGS__", _script_json(settings))
     )
     return MapPage(m, script)
-
-
-def _flat(geometry: dict[str, Any]) -> list[list[float]]:
-    c = geometry["coordinates"]
-    return [c] if geometry["type"] == "Point" else c
 
 
 @dataclass(frozen=True)
@@ -296,15 +282,17 @@ _CSS = """
 _JS = r"""
 (function () {
   var map = __MAP__;
-  var data = __DATA__;
+  var D = __DATA__;
   var S = __SETTINGS__;
+  var n = D.id.length;
   var CASE_NAMES = {drained: "drained", blocked: "drains blocked", surveyed: "as surveyed"};
   var CHECK_NAMES = {middle_third: "middle third", bearing: "bearing", sliding: "sliding",
     overturning: "overturning", crack_middle_third: "crack: middle third", crack_sliding: "crack: sliding",
     crack_overturning: "crack: overturning", vertical_load: "uplift exceeds weight"};
   var views = [["Worst case", -1]];
-  S.cases.forEach(function (c, i) { views.push(["Case: " + CASE_NAMES[c], i]); });
+  D.cases.forEach(function (c, k) { views.push(["Case: " + CASE_NAMES[c], k]); });
   views.push(["Priority band", "band"]);
+  var renderer = S.canvas ? L.canvas({padding: 0.5}) : undefined;
 
   function el(tag, text, cls) {
     var e = document.createElement(tag);
@@ -312,69 +300,83 @@ _JS = r"""
     if (cls) e.className = cls;
     return e;
   }
-  function fmt(v, d) { return (v === null || v === undefined) ? "∞" : Number(v).toFixed(d); }
-  function colourOf(p, view) {
-    if (view === "band") return S.bandColours[S.bands.indexOf(p.band)];
-    var i = view === -1 ? p.worst : view;
-    return S.colours[p.cls[i]];
+  function fmt(v, d) {
+    if (v === null || v === undefined || Number.isNaN(v)) return "–";
+    if (!isFinite(v)) return v > 0 ? "∞" : "−∞";
+    return Number(v).toFixed(d);
   }
-  function style(f, view) {
-    var c = colourOf(f.properties, view);
-    return {color: c, fillColor: c, weight: 5, opacity: 0.95, fillOpacity: 0.9, radius: 6};
+  function bandOf(i) { return D.bandNames[D.band[i]]; }
+  function colourOf(i, view) {
+    if (view === "band") return S.bandColours[S.bands.indexOf(bandOf(i))];
+    var k = view === -1 ? D.worst[i] : view;
+    return S.colours[D.cls[k][i]];
   }
-  function tooltip(p) {
+  function style(i, view) {
+    var c = colourOf(i, view);
+    return {color: c, fillColor: c, weight: S.canvas ? 3 : 5, opacity: 0.95, fillOpacity: 0.9,
+            radius: S.canvas ? 3 : 6, renderer: renderer};
+  }
+  function latlngs(i) {
+    var pts = [];
+    for (var k = D.off[i]; k < D.off[i + 1]; k += 2) pts.push([D.xy[k + 1], D.xy[k]]);
+    return pts;
+  }
+  function tooltip(i) {
     var d = el("div");
-    d.appendChild(el("b", p.id));
-    if (p.name) d.appendChild(el("span", " " + p.name));
+    d.appendChild(el("b", D.id[i]));
+    if (D.name[i]) d.appendChild(el("span", " " + D.name[i]));
     return d;
   }
-  function popup(p) {
+  function popup(i) {
     var d = el("div", null, "ws-popup");
-    var h = el("div"); h.appendChild(el("b", p.id)); h.appendChild(el("span", " " + p.name));
+    var h = el("div"); h.appendChild(el("b", D.id[i])); h.appendChild(el("span", " " + D.name[i]));
     d.appendChild(h);
-    var bandText = S.bandText[S.bands.indexOf(p.band)];
-    d.appendChild(el("div", bandText + " (score " + fmt(p.score, 1) + ", rank " + p.rank + ")"));
-    d.appendChild(el("div", p.reason, "reason"));
+    var bandText = S.bandText[S.bands.indexOf(bandOf(i))];
+    d.appendChild(el("div", bandText + " (score " + fmt(D.score[i], 1) + ", rank " + D.rank[i] + ")"));
+    d.appendChild(el("div", D.reason[i], "reason"));
     var t = el("table"); var head = el("tr");
     ["case", "utilisation", "governing", "e [m] / B/6", "toe / allow. [kPa]", "FoS sl.", "FoS ot."]
       .forEach(function (x) { head.appendChild(el("th", x)); });
     t.appendChild(head);
-    S.cases.forEach(function (c, i) {
+    D.cases.forEach(function (c, k) {
       var r = el("tr");
       r.setAttribute("data-case", c);
-      var out = p.st[i] === "resultant_outside_base";
-      [CASE_NAMES[c], fmt(p.u[i], 2), CHECK_NAMES[p.gov[i]] || p.gov[i],
-       fmt(p.e[i], 2) + " / " + fmt(p.b6, 2),
-       (out ? "∞" : fmt(p.q[i], 0)) + " / " + fmt(p.qa, 0), fmt(p.fs[i], 2), fmt(p.fo[i], 2)]
+      var gov = D.govNames[D.gov[k][i]];
+      [CASE_NAMES[c], fmt(D.u[k][i], 2), CHECK_NAMES[gov] || gov, fmt(D.e[k][i], 2) + " / " + fmt(D.b6[i], 2),
+       fmt(D.q[k][i], 0) + " / " + fmt(D.qa[i], 0), fmt(D.fs[k][i], 2), fmt(D.fo[k][i], 2)]
         .forEach(function (x) { r.appendChild(el("td", x)); });
       t.appendChild(r);
     });
     d.appendChild(t);
-    if (p.sheet) {
-      var a = el("a", "Calculation sheet"); a.href = p.sheet; a.target = "_blank"; a.rel = "noopener";
+    if (D.sheet[i]) {
+      var a = el("a", "Calculation sheet"); a.href = D.sheet[i]; a.target = "_blank"; a.rel = "noopener";
       d.appendChild(a);
     }
     return d;
   }
+  function shape(i, st) {
+    var pts = latlngs(i);
+    return pts.length === 1 ? L.circleMarker(pts[0], st) : L.polyline(pts, st);
+  }
 
   var index = {};
-  data.features.forEach(function (f) { index[f.properties.id.toLowerCase()] = f; });
+  for (var i = 0; i < n; i++) index[D.id[i].toLowerCase()] = i;
   var built = {};
   var groups = {};
   var current = null;
   function build(name, view) {
-    var layers = {};
-    var g = L.geoJSON(data, {
-      style: function (f) { return style(f, view); },
-      pointToLayer: function (f, ll) { return L.circleMarker(ll, style(f, view)); },
-      onEachFeature: function (f, layer) {
-        layers[f.properties.id.toLowerCase()] = layer;
-        layer.bindTooltip(function () { return tooltip(f.properties); }, {sticky: true});
-        layer.bindPopup(function () { return popup(f.properties); },
-          {maxWidth: 460, autoPanPaddingBottomRight: L.point(20, 180)});
-      }
-    });
-    built[name] = {layer: g, byId: layers};
+    var byId = {};
+    var g = L.featureGroup();
+    // the data is in ranking order: draw from the last so that rank 1 ends on top
+    for (var i = n - 1; i >= 0; i--) {
+      var layer = shape(i, style(i, view));
+      layer.wsIndex = i;
+      layer.bindTooltip(tooltip.bind(null, i), {sticky: true});
+      layer.bindPopup(popup.bind(null, i), {maxWidth: 460, autoPanPaddingBottomRight: L.point(20, 180)});
+      byId[D.id[i].toLowerCase()] = layer;
+      g.addLayer(layer);
+    }
+    built[name] = {layer: g, byId: byId};
     return g;
   }
   views.forEach(function (v) {
@@ -389,16 +391,14 @@ _JS = r"""
   var overlays = {};
   Object.keys(S.extra).forEach(function (name) {
     var notes = S.extra[name];
-    var g = L.geoJSON({type: "FeatureCollection", features: data.features.filter(function (f) {
-      return Object.prototype.hasOwnProperty.call(notes, f.properties.id); })}, {
-      style: function () {
-        return {color: "#FFD400", weight: 11, opacity: 0.55, radius: 11, fillOpacity: 0.3};
-      },
-      pointToLayer: function (f, ll) { return L.circleMarker(ll); },
-      onEachFeature: function (f, layer) {
-        layer.bindTooltip(function () { var d = tooltip(f.properties);
-          d.appendChild(el("div", notes[f.properties.id])); return d; }, {sticky: true});
-      }
+    var g = L.featureGroup();
+    Object.keys(notes).forEach(function (id) {
+      var i = index[id.toLowerCase()];
+      if (i === undefined) return;
+      var layer = shape(i, {color: "#FFD400", weight: 11, opacity: 0.55, radius: 11, fillOpacity: 0.3});
+      layer.bindTooltip(function () { var d = tooltip(i); d.appendChild(el("div", notes[id])); return d; },
+                        {sticky: true});
+      g.addLayer(layer);
     });
     overlays[name] = g;
   });
@@ -410,14 +410,14 @@ _JS = r"""
     d.textContent = "";
     if (view === "band") {
       d.appendChild(el("b", "Inspection priority"));
-      S.bands.forEach(function (b, i) { var r = el("div"); var s = el("span", null, "sw");
-        s.style.background = S.bandColours[i]; r.appendChild(s); r.appendChild(el("span", S.bandText[i]));
+      S.bands.forEach(function (b, k) { var r = el("div"); var s = el("span", null, "sw");
+        s.style.background = S.bandColours[k]; r.appendChild(s); r.appendChild(el("span", S.bandText[k]));
         d.appendChild(r); });
     } else {
-      var which = view === -1 ? "worst of the three cases" : CASE_NAMES[S.cases[view]];
+      var which = view === -1 ? "worst of the three cases" : CASE_NAMES[D.cases[view]];
       d.appendChild(el("b", "Margin, " + which));
-      S.colours.forEach(function (c, i) { var r = el("div"); var s = el("span", null, "sw");
-        s.style.background = c; r.appendChild(s); r.appendChild(el("span", S.marginText[i]));
+      S.colours.forEach(function (c, k) { var r = el("div"); var s = el("span", null, "sw");
+        s.style.background = c; r.appendChild(s); r.appendChild(el("span", S.marginText[k]));
         d.appendChild(r); });
     }
   };
@@ -439,8 +439,7 @@ _JS = r"""
     input.addEventListener("keydown", function (ev) {
       if (ev.key !== "Enter") return;
       var key = input.value.trim().toLowerCase();
-      var f = index[key];
-      if (!f) { msg.textContent = "No wall with that id on the map"; return; }
+      if (index[key] === undefined) { msg.textContent = "No wall with that id on the map"; return; }
       msg.textContent = "";
       var layer = built[current[0]].byId[key];
       if (layer.getLatLng) map.setView(layer.getLatLng(), 18);
@@ -450,9 +449,9 @@ _JS = r"""
     return d;
   };
   search.addTo(map);
-  if (data.features.length) {
+  if (n) {
     map.fitBounds(S.bounds, {paddingTopLeft: [20, 20], paddingBottomRight: [20, 170]});
   }
-  window.wallscreenMap = {map: map, built: built, count: data.features.length};
+  window.wallscreenMap = {map: map, built: built, count: n, data: D};
 })();
 """

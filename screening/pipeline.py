@@ -149,7 +149,8 @@ def add_priority(
     cons = priority.consequence(inputs["consequence"], inputs["height_m"], config.consequence_weight, s)
     out["priority_score"] = np.round(100.0 * like * cons, 2)
     out["priority_band"] = priority.band(out["priority_score"], s)
-    out["reason"] = priority.reasons(inputs, results).to_numpy()
+    by_case = {case: results[results["case"] == case].set_index("_wall").loc[summary.index] for case in CASES}
+    out["reason"] = priority.reasons(inputs, by_case)
     for col in (*INPUT_COLUMNS, "lean_rate_deg_per_year", "lean_rate_mm_per_year", "lean_growing"):
         out[col] = inputs[col].to_numpy()
     out["_far"] = (

@@ -132,8 +132,23 @@ def _show(value: object) -> str:
 
 def _blank(series: pd.Series) -> pd.Series:
     """True where a cell is empty (NaN, None or only white space)."""
-    text = series.astype(object).where(series.notna(), None)
-    return text.isna() | text.map(lambda v: isinstance(v, str) and not v.strip())
+    missing = series.isna()
+    if pd.api.types.is_numeric_dtype(series) or pd.api.types.is_bool_dtype(series):
+        return missing
+    values = series.to_numpy(dtype=object)
+    text = np.where(missing.to_numpy(), "", values).astype(str)
+    return missing | pd.Series(np.char.str_len(np.char.strip(text)) == 0, index=series.index)
+
+
+def _clean_text(series: pd.Series) -> pd.Series:
+    """Values as stripped text (numbers written as read), blanks kept as missing."""
+    missing = series.isna()
+    text = pd.Series(
+        np.char.strip(np.where(missing.to_numpy(), "", series.to_numpy(dtype=object)).astype(str)),
+        index=series.index,
+        dtype=object,
+    )
+    return text.where(~missing)
 
 
 def cast(frame: pd.DataFrame, config: Config, log: _Log) -> pd.DataFrame:
@@ -150,7 +165,7 @@ def cast(frame: pd.DataFrame, config: Config, log: _Log) -> pd.DataFrame:
         elif col in schema.CODED:
             allowed = schema.CODED[col] or tuple(config.consequence_weight)
             text = raw.where(~blank).astype(object)
-            code = text.map(lambda v: str(v).strip().lower().replace(" ", "_"), na_action="ignore")
+            code = _clean_text(text).str.lower().str.replace(" ", "_", regex=False)
             bad = code.notna() & ~code.isin(allowed)
             log.problem(bad, col, f"expected one of {', '.join(allowed)}", values=raw)
             out[col] = code.where(~bad).astype(object)
@@ -159,7 +174,7 @@ def cast(frame: pd.DataFrame, config: Config, log: _Log) -> pd.DataFrame:
             log.problem(~blank & dates.isna(), col, "expected a date (YYYY-MM-DD)", values=raw)
             out[col] = dates
         else:
-            out[col] = raw.where(~blank).astype(object).map(lambda v: str(v).strip(), na_action="ignore")
+            out[col] = _clean_text(raw.where(~blank).astype(object))
     return out
 
 

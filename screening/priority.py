@@ -130,8 +130,12 @@ def band(score: ArrayLike, settings: PrioritySettings) -> NDArray[np.str_]:
     )
 
 
-def _fmt(values: pd.Series, spec: str) -> pd.Series:
-    return values.map(lambda v: "∞" if np.isinf(v) else format(v, spec))
+def _fmt(values: ArrayLike, digits: int) -> NDArray[np.object_]:
+    """Numbers as text with fixed decimals, vectorised; ∞ for infinity, '' for NaN."""
+    v = np.asarray(values, dtype=float)
+    finite = np.isfinite(v)
+    text = np.char.mod(f"%.{digits}f", np.where(finite, v, 0.0)).astype(object)
+    return np.where(np.isinf(v), "∞", np.where(finite, text, "")).astype(object)
 
 
 _CHECK_WORDS = {
@@ -146,46 +150,52 @@ _CHECK_WORDS = {
 }
 
 
-def reasons(walls: pd.DataFrame, results: pd.DataFrame) -> pd.Series:
-    """A one-line reason in plain words for each wall, built column-wise.
+def _when(mask: ArrayLike, text: NDArray[np.object_]) -> NDArray[np.object_]:
+    return np.where(np.asarray(mask, dtype=bool), text, "").astype(object)
 
-    ``walls`` needs ``wall_id``, ``condition_rating``, ``lean_deg``, ``crack_height_m``,
-    ``consequence``, ``height_m``; ``results`` the long results.
+
+def reasons(walls: pd.DataFrame, by_case: Mapping[str, pd.DataFrame]) -> NDArray[np.object_]:
+    """A one-line reason in plain words for each wall, built column-wise (object arrays).
+
+    ``walls`` needs ``condition_rating``, ``lean_deg``, ``crack_height_m``, ``consequence``,
+    ``height_m`` (and optionally ``lean_rate_deg_per_year``, ``lean_growing``); ``by_case``
+    the results of the ``surveyed`` and ``blocked`` cases, row for row with ``walls``.
     """
-    wide = results.set_index(["wall_id", "case"])
-    idx = walls["wall_id"]
-    parts: list[pd.Series] = []
-    for case, words in (("surveyed", "as surveyed"), ("blocked", "with drains blocked")):
-        r = wide.xs(case, level="case").reindex(idx)
-        util = r["utilisation"].reset_index(drop=True)
-        check = r["governing_check"].reset_index(drop=True).map(_CHECK_WORDS).fillna("")
-        state = r["state"].reset_index(drop=True)
-        check = check.where(state != "resultant_outside_base", "the resultant falls outside the base")
-        text = words + " " + check + " (utilisation " + _fmt(util, ".2f") + ")"
-        parts.append(text.where(util > 1, ""))
+    parts: list[NDArray[np.object_]] = []
+    for case, words in (("surveyed", "as surveyed "), ("blocked", "with drains blocked ")):
+        r = by_case[case]
+        util = r["utilisation"].to_numpy(dtype=float)
+        check = pd.Series(r["governing_check"].to_numpy(dtype=object)).map(_CHECK_WORDS).fillna("")
+        check = np.where(
+            r["state"].to_numpy(dtype=object) == "resultant_outside_base",
+            "the resultant falls outside the base",
+            check.to_numpy(dtype=object),
+        ).astype(object)
+        parts.append(_when(util > 1, words + check + " (utilisation " + _fmt(util, 2) + ")"))
     # say the blocked case only where it adds to the surveyed one
-    surveyed_fail = parts[0] != ""
-    same = parts[1].str.replace("with drains blocked", "", regex=False) == parts[0].str.replace(
-        "as surveyed", "", regex=False
+    same = (parts[1] != "") & (
+        np.char.replace(parts[1].astype(str), "with drains blocked ", "")
+        == np.char.replace(parts[0].astype(str), "as surveyed ", "")
     )
-    parts[1] = parts[1].where(~(surveyed_fail & same), "")
-    w = walls.reset_index(drop=True)
-    cond = "condition " + w["condition_rating"].map(lambda v: f"{v:.0f}")
-    parts.append(cond.where(w["condition_rating"] >= 3, ""))
-    lean = w["lean_deg"]
-    parts.append(("lean " + lean.map(lambda v: f"{v:.1f}") + "° outwards").where(lean >= 1.0, ""))
-    if "lean_rate_deg_per_year" in w:
-        rate = w["lean_rate_deg_per_year"]
-        growing = w["lean_growing"].fillna(False).astype(bool) if "lean_growing" in w else rate > 0
-        parts.append(("lean growing " + rate.map(lambda v: f"{v:.2f}") + "°/yr").where(growing, ""))
-    crack = w["crack_height_m"]
-    parts.append(("crack at " + crack.map(lambda v: f"{v:.1f}") + " m").where(crack.notna(), ""))
-    below = w["consequence"].astype(str).str.replace("_", " ")
-    parts.append(below + " below, " + w["height_m"].map(lambda v: f"{v:.1f}") + " m high")
-    text = pd.Series("", index=w.index)
+    parts[1] = _when(~same, parts[1])
+    cond = walls["condition_rating"].to_numpy(dtype=float)
+    parts.append(_when(cond >= 3, "condition " + _fmt(cond, 0)))
+    lean = walls["lean_deg"].to_numpy(dtype=float)
+    parts.append(_when(lean >= 1.0, "lean " + _fmt(lean, 1) + "° outwards"))
+    if "lean_rate_deg_per_year" in walls:
+        rate = walls["lean_rate_deg_per_year"].to_numpy(dtype=float)
+        growing = (
+            walls["lean_growing"].fillna(False).to_numpy(dtype=bool) if "lean_growing" in walls else rate > 0
+        )
+        parts.append(_when(growing, "lean growing " + _fmt(rate, 2) + "°/yr"))
+    crack = walls["crack_height_m"].to_numpy(dtype=float)
+    parts.append(_when(np.isfinite(crack), "crack at " + _fmt(crack, 1) + " m"))
+    below = np.char.replace(walls["consequence"].to_numpy(dtype=str), "_", " ").astype(object)
+    parts.append(below + " below, " + _fmt(walls["height_m"], 1) + " m high")
+    text = np.full(len(walls), "", dtype=object)
     for part in parts:
-        both = (text != "") & (part != "")
-        text = text + np.where(both, "; ", "") + part
+        text = text + np.where((text != "") & (part != ""), "; ", "") + part
     none_fail = (parts[0] == "") & (parts[1] == "")
-    text = pd.Series(np.where(none_fail, "passes every check in every case; ", ""), index=w.index) + text
-    return text.str.slice(0, 1).str.upper() + text.str.slice(1)
+    text = np.where(none_fail, "passes every check in every case; ", "").astype(object) + text
+    s = pd.Series(text, dtype=object)
+    return (s.str.slice(0, 1).str.upper() + s.str.slice(1)).to_numpy(dtype=object)

@@ -9,7 +9,6 @@ came from the register is always written as a string cell, so a value such as
 from __future__ import annotations
 
 import json
-import math
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
@@ -129,7 +128,7 @@ METHOD_TEXT: list[tuple[str, str]] = [
         "Defaults",
         "Blanks are filled from documented defaults (EN 1991-1-1 Annex A unit weights, BS 8002 "
         "surcharge, presumed bearing values after BS 8004 Table 1 and NAVFAC DM 7.02); every one used is "
-        "listed per wall on the sheet 'Assumed defaults'.",
+        "listed on the sheets 'Assumed defaults' and 'Assumed per wall'.",
     ),
     (
         "Not included",
@@ -144,9 +143,10 @@ class _Formats:
         self.header = book.add_format(
             {"bold": True, "text_wrap": True, "valign": "top", "bg_color": "#E8E8E8", "border": 1}
         )
-        self.num2 = book.add_format({"num_format": "0.00"})
-        self.num3 = book.add_format({"num_format": "0.000"})
-        self.int = book.add_format({"num_format": "0"})
+        # right-aligned so that "∞" lines up with the numbers
+        self.num2 = book.add_format({"num_format": "0.00", "align": "right"})
+        self.num3 = book.add_format({"num_format": "0.000", "align": "right"})
+        self.int = book.add_format({"num_format": "0", "align": "right"})
         self.right = book.add_format({"align": "right"})
         self.wrap = book.add_format({"text_wrap": True, "valign": "top"})
         self.title = book.add_format({"bold": True, "font_size": 14})
@@ -168,23 +168,29 @@ class _Formats:
         }
 
 
-def _cell(sheet: Worksheet, r: int, c: int, value: Any, kind: str, f: _Formats) -> None:
-    if value is None or (isinstance(value, float) and math.isnan(value)) or value is pd.NA:
-        sheet.write_blank(r, c, None)
-        return
-    if kind in ("text", "word"):
-        text = BAND_LABELS.get(value, value) if kind == "word" else value
-        sheet.write_string(r, c, str(text).replace("_", " ") if kind == "word" else str(text))
-    elif kind == "bool":
-        sheet.write_boolean(r, c, bool(value))
-    elif kind == "link":
-        sheet.write_url(r, c, f"external:{value}", f.link, string="open sheet")
-    else:
-        v = float(value)
-        if math.isinf(v):
-            sheet.write_string(r, c, "∞" if v > 0 else "-∞", f.right)
-        else:
-            sheet.write_number(r, c, v, getattr(f, kind if kind in ("num2", "num3", "int") else "num2"))
+def _column_values(values: pd.Series, kind: str) -> list[Any]:
+    """A column as the Python values ``write_row`` takes, converted column-wise:
+    None for blanks, "∞" for infinity, labels for our coded words."""
+    if kind in ("num2", "num3", "int"):
+        v = pd.to_numeric(values, errors="coerce").to_numpy(dtype=float)
+        out = v.astype(object)
+        out[np.isnan(v)] = None
+        out[np.isposinf(v)] = "∞"
+        out[np.isneginf(v)] = "-∞"
+        return out.tolist()
+    if kind == "bool":
+        missing = values.isna().to_numpy()
+        out = values.to_numpy(dtype=object).copy()
+        out[missing] = None
+        out[~missing] = out[~missing].astype(bool)
+        return out.tolist()
+    missing = values.isna().to_numpy()
+    text = values.astype(object).where(~values.isna(), "").astype(str)
+    if kind == "word":
+        text = text.map(lambda t: BAND_LABELS.get(t, t)).str.replace("_", " ", regex=False)
+    out = text.to_numpy(dtype=object)
+    out[missing] = None
+    return out.tolist()
 
 
 def _table(
@@ -196,18 +202,31 @@ def _table(
     widths: dict[str, int] | None = None,
     start_row: int = 0,
 ) -> int:
-    """Header, rows in order, frozen header and filters; returns the last row written."""
+    """Header, rows in order, frozen header and filters; returns the last row written.
+
+    Rows go out with ``write_row`` (the workbook is opened with strings_to_formulas and
+    strings_to_urls off, so register text always lands as a string cell); number formats
+    are column formats, which xlsxwriter applies to cells written without one.
+    """
     cols = [c for c in columns if c[0] in frame.columns]
     sheet.set_row(start_row, 45)
-    for c, (_, header, _) in enumerate(cols):
+    formats = {"num2": f.num2, "num3": f.num3, "int": f.int}
+    for c, (name, header, kind) in enumerate(cols):
         sheet.write_string(start_row, c, header, f.header)
-        sheet.set_column(c, c, (widths or {}).get(cols[c][0], max(10, min(len(header) + 2, 22))))
-    arrays = [frame[name].to_numpy(dtype=object) for name, _, _ in cols]
-    kinds = [kind for _, _, kind in cols]
-    for i in range(len(frame)):
+        width = (widths or {}).get(name, max(10, min(len(header) + 2, 22)))
+        sheet.set_column(c, c, width, formats.get(kind))
+    links = [c for c, (_, _, kind) in enumerate(cols) if kind == "link"]
+    data = [
+        [None] * len(frame) if kind == "link" else _column_values(frame[name], kind) for name, _, kind in cols
+    ]
+    link_values = {c: frame[cols[c][0]].to_numpy(dtype=object) for c in links}
+    for i, row in enumerate(zip(*data, strict=True)):
         r = start_row + 1 + i
-        for c, kind in enumerate(kinds):
-            _cell(sheet, r, c, arrays[c][i], kind, f)
+        sheet.write_row(r, 0, row)
+        for c in links:
+            target = link_values[c][i]
+            if isinstance(target, str) and target:
+                sheet.write_url(r, c, f"external:{target}", f.link, string="open sheet")
     last = start_row + len(frame)
     sheet.set_landscape()
     sheet.fit_to_pages(1, 0)
@@ -274,6 +293,7 @@ def write_workbook(
     provenance: list[tuple[str, Any]],
     method_text: list[tuple[str, str]] = METHOD_TEXT,
     changes: pd.DataFrame | None = None,
+    full_results_limit: int = 1_000,
     look_first: int = 100,
 ) -> Path:
     """Write ``report.xlsx`` atomically. See the module docstring for the sheets."""
@@ -343,11 +363,26 @@ def write_workbook(
             _table(sheet, changes, change_cols, f, widths={"inputs_changed": 70})
 
         sheet = book.add_worksheet("Results by case")
+        shown = results
+        start = 0
+        if len(walls) > full_results_limit:
+            # a sheet of 3 x 10^5 rows helps nobody and takes minutes to write: keep the
+            # first walls of the ranking here; results.csv has every wall and case
+            keep = set(walls["wall_id"].head(full_results_limit))
+            shown = results[results["wall_id"].isin(keep)]
+            sheet.write_string(
+                0,
+                0,
+                f"The first {full_results_limit} walls of the ranking (of {len(walls)}); every wall "
+                "and case is in results.csv.",
+                f.bold,
+            )
+            start = 2
         cols = [
             (c, RESULT_HEADERS.get(c, c.replace("_", " ")), _kind(c, results[c])) for c in results.columns
         ]
-        _table(sheet, results, cols, f)
-        _colour_utilisation(sheet, results, cols, f)
+        _table(sheet, shown, cols, f, start_row=start)
+        _colour_utilisation(sheet, shown, cols, f, start_row=start)
 
         sheet = book.add_worksheet("Rejected rows")
         sheet.write_string(0, 0, "Errors reject the row (it was not screened); warnings keep it.", f.bold)
@@ -361,15 +396,30 @@ def write_workbook(
         ]
         _table(sheet, problems, prob_cols, f, widths={"message": 80}, start_row=2)
 
+        # the same default is usually used for many walls: one row per default here, and one
+        # row per wall on the next sheet (every single one is in assumptions.csv)
         sheet = book.add_worksheet("Assumed defaults")
+        summary = _assumption_summary(assumptions)
         ass_cols = [
-            ("wall_id", "Wall", "text"),
-            ("row", "Row in your file", "int"),
-            ("column", "Column assumed", "word"),
+            ("column", "Column assumed", "text"),
             ("value", "Value used", "text"),
-            ("source", "Source", "word"),
+            ("source", "Source", "text"),
+            ("walls", "Walls", "int"),
         ]
-        _table(sheet, assumptions, ass_cols, f, widths={"source": 90})
+        _table(sheet, summary, ass_cols, f, widths={"source": 90, "value": 14})
+        sheet = book.add_worksheet("Assumed per wall")
+        per_wall = _assumptions_per_wall(assumptions)
+        _table(
+            sheet,
+            per_wall,
+            [
+                ("wall_id", "Wall", "text"),
+                ("row", "Row in your file", "int"),
+                ("assumed", "Columns assumed (value)", "text"),
+            ],
+            f,
+            widths={"assumed": 140},
+        )
 
         sheet = book.add_worksheet("Settings")
         sheet.set_column(0, 0, 34)
@@ -391,6 +441,32 @@ def write_workbook(
         book.close()
 
     return write_atomic(target, build)
+
+
+def _assumption_summary(assumptions: pd.DataFrame) -> pd.DataFrame:
+    if assumptions.empty:
+        return pd.DataFrame(columns=["column", "value", "source", "walls"])
+    a = assumptions.assign(value=assumptions["value"].map(_short))
+    return (
+        a.groupby(["column", "value", "source"], sort=False, dropna=False)
+        .size()
+        .rename("walls")
+        .reset_index()
+    )
+
+
+def _assumptions_per_wall(assumptions: pd.DataFrame) -> pd.DataFrame:
+    if assumptions.empty:
+        return pd.DataFrame(columns=["wall_id", "row", "assumed"])
+    text = assumptions["column"].astype(str) + " = " + assumptions["value"].map(_short)
+    grouped = text.groupby([assumptions["wall_id"], assumptions["row"]], sort=False).agg("; ".join)
+    return grouped.rename("assumed").reset_index()
+
+
+def _short(value: Any) -> str:
+    if isinstance(value, (float, np.floating)):
+        return f"{float(value):.4g}"
+    return str(value)
 
 
 def _kind(name: str, column: pd.Series) -> str:

@@ -39,8 +39,8 @@ def test_demo_writes_every_output_consistently(tmp_path: Path) -> None:
     walls = pd.read_csv(out / "walls.csv")
     # the walls on the map are the walls in the workbook (those with a location)
     html = (out / "map.html").read_text()
-    data = json.loads(re.search(r"var data = (\{.*?\});\n", html, re.S).group(1))
-    on_map = {f["properties"]["id"] for f in data["features"]}
+    data = json.loads(re.search(r"var D = (\{.*?\});\n", html, re.S).group(1))
+    on_map = set(data["id"])
     book = openpyxl.load_workbook(out / "report.xlsx")
     ranked = list(book["Ranked walls"].iter_rows(min_row=2, values_only=True))
     in_book = {r[1] for r in ranked}

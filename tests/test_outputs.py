@@ -49,6 +49,7 @@ def test_workbook_sheets_and_layout(run_dir: Path) -> None:
         "Results by case",
         "Rejected rows",
         "Assumed defaults",
+        "Assumed per wall",
         "Settings",
         "Method and cautions",
     ]
@@ -93,7 +94,10 @@ def test_rejected_rows_defaults_and_settings(run_dir: Path) -> None:
     rejected = list(book["Rejected rows"].iter_rows(min_row=4, values_only=True))
     assert any(r[1] == "BAD" and r[0] == 5 and r[4] == "error" for r in rejected)
     defaults = list(book["Assumed defaults"].iter_rows(min_row=2, values_only=True))
-    assert any(r[0] == "@C" and r[2] == "surveyed water height m" for r in defaults)
+    assert not any(r[0] == "surcharge_kpa" for r in defaults)  # every test wall records q
+    assert any(r[0] == "surveyed water_height_m" and r[3] >= 1 for r in defaults)
+    per_wall = {r[0]: r[2] for r in book["Assumed per wall"].iter_rows(min_row=2, values_only=True)}
+    assert "surveyed water_height_m = 1.5" in per_wall["@C"]  # partial drainage: half of H_r = 3 m
     settings = {r[0]: r[1] for r in book["Settings"].iter_rows(values_only=True) if r[0]}
     assert settings["input file"] == "reg.csv" and len(settings["input SHA-256"]) == 64
     assert settings["fos_sliding_required"] == 1.5

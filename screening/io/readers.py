@@ -121,7 +121,10 @@ def _frame_from_grid(grid: pd.DataFrame, header: int, path: Path) -> pd.DataFram
     frame.columns = [names[i] for i in keep]
     frame["row"] = np.arange(len(frame)) + header + 2
     # rows where every cell is empty are layout, not walls
-    empty = frame.drop(columns="row").apply(lambda s: s.isna() | s.astype(str).str.strip().eq(""))
+    cells = frame.drop(columns="row").to_numpy(dtype=object)
+    missing = pd.isna(cells)
+    text = np.where(missing, "", cells).astype(str)
+    empty = missing | (np.char.str_len(np.char.strip(text)) == 0)
     return frame[~empty.all(axis=1)].reset_index(drop=True)
 
 
@@ -158,26 +161,27 @@ def _read_csv(path: Path, known: set[str]) -> RawRegister:
     )
     header = _find_header(grid, known, path)
     frame = _frame_from_grid(grid, header, path)
+    # only columns holding a comma can need it: decimal commas, or thousands separators
     if decimal == ",":
-        frame = frame.apply(
-            lambda s: (
-                s.str.replace(".", "", regex=False).str.replace(",", ".", regex=False)
-                if s.name != "row" and s.str.fullmatch(r"\s*-?[\d.]*,\d+\s*|\s*-?\d[\d.]*\s*|\s*").all()
-                else s
-            )
-        )
+        pattern, fix = r"\s*-?[\d.]*,\d+\s*|\s*-?\d[\d.]*\s*|\s*", _decimal_comma
     else:
-        # thousands separators: "1,250" in a numeric-looking column
-        frame = frame.apply(
-            lambda s: (
-                s.str.replace(",", "", regex=False)
-                if s.name != "row"
-                and s.str.fullmatch(r"\s*-?\d{1,3}(,\d{3})+(\.\d+)?\s*|\s*-?\d*\.?\d*\s*").all()
-                else s
-            )
-        )
+        pattern, fix = r"\s*-?\d{1,3}(,\d{3})+(\.\d+)?\s*|\s*-?\d*\.?\d*\s*", _thousands
+    for col in frame.columns:
+        if col == "row":
+            continue
+        s = frame[col]
+        if s.str.contains(",", regex=False).any() and s.str.fullmatch(pattern).all():
+            frame[col] = fix(s)
     notes = [f"read as CSV: encoding {encoding}, delimiter {delimiter!r}, decimal {decimal!r}"]
     return RawRegister(frame, path, header_row=header + 1, notes=notes)
+
+
+def _decimal_comma(s: pd.Series) -> pd.Series:
+    return s.str.replace(".", "", regex=False).str.replace(",", ".", regex=False)
+
+
+def _thousands(s: pd.Series) -> pd.Series:
+    return s.str.replace(",", "", regex=False)
 
 
 def _looks_decimal_comma(sample: str, delimiter: str) -> bool:
