@@ -203,7 +203,14 @@ def _screen_with_progress(
         transient=True,
     ) as bar:
         task = bar.add_task("reading and screening", total=None)
-        job = screen_file(register, mapping=mapping, sheet=sheet, config=cfg, history=history)
+        job = screen_file(
+            register,
+            mapping=mapping,
+            sheet=sheet,
+            config=cfg,
+            history=history,
+            progress=lambda name: bar.update(task, description=name),
+        )
         if len(job.walls) == 0:
             _print_problems(job)
             if job.screening.prepared.n_read == 0:

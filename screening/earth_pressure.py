@@ -105,14 +105,13 @@ def effective_thrust(
     g_sub = np.asarray(soil_saturated_unit_weight_kn_m3, dtype=float) - gamma_w_kn_m3
     q = np.asarray(surcharge_kpa, dtype=float)
     ka = np.asarray(ka, dtype=float)
-    dry = r - h
-    force = 0.5 * g * dry**2 + g * dry * h + 0.5 * g_sub * h**2 + q * r
-    moment = (
-        g * (r**3 / 6.0 - r * h**2 / 2.0 + h**3 / 3.0)
-        + g * dry * h**2 / 2.0
-        + g_sub * h**3 / 6.0
-        + q * r**2 / 2.0
-    )
+    # the same closed forms, grouped so that terms of the wall alone (r, g, q) are computed
+    # once per wall and only the water terms per case: force = ½γr² + ½(γ' − γ)h² + qr and
+    # moment = γr³/6 + (γ' − γ)h³/6 + qr²/2
+    dg = g_sub - g
+    h2 = h * h
+    force = (0.5 * g * r + q) * r + 0.5 * dg * h2
+    moment = (g / 6.0 * r + 0.5 * q) * r * r + dg / 6.0 * (h2 * h)
     return ka * force, ka * moment
 
 

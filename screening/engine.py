@@ -162,20 +162,39 @@ def crack_section(p: Mapping[str, FloatArray]) -> dict[str, FloatArray]:
     return out
 
 
-def case_water_heights(p: Mapping[str, FloatArray]) -> dict[str, FloatArray]:
-    """Water height behind the wall in each case (method.md §4)."""
-    retained = p["retained_height_m"]
-    return {
-        "drained": np.zeros_like(retained),
-        "blocked": retained.copy(),
-        "surveyed": np.asarray(p["surveyed_water_height_m"], dtype=float),
-    }
+def case_water_heights(p: Mapping[str, FloatArray]) -> FloatArray:
+    """Water height behind the wall in each case (method.md §4), shape (cases, walls)."""
+    retained = np.asarray(p["retained_height_m"], dtype=float)
+    return np.stack(
+        [np.zeros_like(retained), retained, np.asarray(p["surveyed_water_height_m"], dtype=float)]
+    )
+
+
+STATE_CODES = {name: k for k, name in enumerate(stability.STATES)}
+GOVERNING = (*CHECKS, "vertical_load")
+"""Names behind the integer codes of ``state``, ``governing_check`` and ``case``:
+``stability.STATES[code]``, ``GOVERNING[code]`` and ``CASES[code]``."""
+
+
+def _governing(utils: list[FloatArray]) -> tuple[FloatArray, NDArray[np.int8]]:
+    """Largest utilisation and the index of its check (NaN counts as absent; first wins ties)."""
+    best = np.full(utils[0].shape, -np.inf)
+    index = np.zeros(utils[0].shape, dtype=np.int8)
+    for k, u in enumerate(utils):
+        better = u > best
+        best = np.where(better, u, best)
+        index[better] = k
+    return best, index
 
 
 def run_cases(
     inputs: Mapping[str, NDArray[np.float64]], config: Config, *, details: bool = False
 ) -> dict[str, NDArray]:
     """Screen every wall in every case in one vectorised pass.
+
+    The cases are the rows of a (cases × walls) grid: per-wall inputs broadcast against
+    the water height of each case, so nothing is copied per case. The part above a
+    crack is computed for cracked walls only.
 
     Parameters
     ----------
@@ -190,46 +209,41 @@ def run_cases(
     Returns
     -------
     dict of str to numpy.ndarray
-        Columns of ``results.csv`` (and ``case``), length 3n, case-major.
+        Columns of ``results.csv``, length 3n, case-major; ``state``, ``governing_check``
+        and ``case`` as small integer codes (see :data:`GOVERNING`, :func:`decode`).
     """
-    n = len(inputs["height_m"])
-    p = {k: np.tile(np.asarray(inputs[k], dtype=float), len(CASES)) for k in ENGINE_INPUTS}
-    waters = case_water_heights({k: np.asarray(inputs[k], dtype=float) for k in ENGINE_INPUTS})
-    hw = np.concatenate([waters[c] for c in CASES])
+    p = {k: np.asarray(inputs[k], dtype=float) for k in ENGINE_INPUTS}
+    n = len(p["height_m"])
+    shape = (len(CASES), n)
+    hw = case_water_heights(p)
 
-    out: dict[str, NDArray] = section_checks(
+    grid: dict[str, NDArray] = section_checks(
         p, hw, uplift=config.uplift, friction_deg=p["base_friction_deg"], config=config, details=details
     )
     toe, heel, state = stability.base_pressure(
-        out["vertical_kn_m"], out["resultant_from_toe_m"], p["base_width_m"]
+        grid["vertical_kn_m"], grid["resultant_from_toe_m"], p["base_width_m"]
     )
-    out["toe_pressure_kpa"] = toe
-    out["heel_pressure_kpa"] = heel
+    grid["toe_pressure_kpa"] = toe
+    grid["heel_pressure_kpa"] = heel
     with np.errstate(invalid="ignore"):
-        out["bearing_utilisation"] = np.maximum(toe, heel) / p["allowable_bearing_kpa"]
-    out["sliding_utilisation"] = stability.fos_utilisation(out["fos_sliding"], config.fos_sliding_required)
-    out["overturning_utilisation"] = stability.fos_utilisation(
-        out["fos_overturning"], config.fos_overturning_required
+        grid["bearing_utilisation"] = np.maximum(toe, heel) / p["allowable_bearing_kpa"]
+    grid["sliding_utilisation"] = stability.fos_utilisation(grid["fos_sliding"], config.fos_sliding_required)
+    grid["overturning_utilisation"] = stability.fos_utilisation(
+        grid["fos_overturning"], config.fos_overturning_required
     )
+    out = {k: np.broadcast_to(v, shape).reshape(-1) for k, v in grid.items()}
+    out["water_height_m"] = hw.reshape(-1)
 
-    # the part above a known crack: no uplift in the crack, joint friction
-    cracked = np.isfinite(p["crack_height_m"])
-    crack_p = crack_section(p)
+    # the part above a known crack (cracked walls only): no uplift in the crack, joint friction
+    rows = np.flatnonzero(np.isfinite(p["crack_height_m"]))
+    crack_p = crack_section({k: v[rows] for k, v in p.items()})
     crack = section_checks(
         crack_p,
-        np.maximum(hw - p["crack_height_m"], 0.0),
+        np.maximum(hw[:, rows] - crack_p["crack_height_m"], 0.0),
         uplift=False,
-        friction_deg=p["joint_friction_deg"],
+        friction_deg=crack_p["joint_friction_deg"],
         config=config,
         details=details,
-    )
-    nan = np.full(3 * n, np.nan)
-    out["crack_eccentricity_m"] = np.where(cracked, crack["eccentricity_m"], nan)
-    out["crack_middle_third_utilisation"] = np.where(cracked, crack["middle_third_utilisation"], nan)
-    out["crack_fos_overturning"] = np.where(cracked, crack["fos_overturning"], nan)
-    out["crack_fos_sliding"] = np.where(cracked, crack["fos_sliding"], nan)
-    out["crack_overturning_utilisation"] = stability.fos_utilisation(
-        out["crack_fos_overturning"], config.fos_overturning_required
     )
     if details:
         for key in (
@@ -243,29 +257,48 @@ def run_cases(
             "ka",
         ):
             crack[f"d_{key}"] = crack[key]
-        out |= {f"crack_{k}": np.where(cracked, v, np.nan) for k, v in crack.items() if k.startswith("d_")}
-        out["crack_d_base_width_m"] = np.where(cracked, crack_p["base_width_m"], np.nan)
-        out["crack_d_height_m"] = np.where(cracked, crack_p["height_m"], np.nan)
+        crack["d_base_width_m"] = crack_p["base_width_m"]
+        crack["d_height_m"] = crack_p["height_m"]
+    wanted = {
+        "eccentricity_m": "crack_eccentricity_m",
+        "middle_third_utilisation": "crack_middle_third_utilisation",
+        "fos_overturning": "crack_fos_overturning",
+        "fos_sliding": "crack_fos_sliding",
+    } | ({k: f"crack_{k}" for k in crack if k.startswith("d_")} if details else {})
+    for key, name in wanted.items():
+        full = np.full(shape, np.nan)
+        full[:, rows] = np.broadcast_to(crack[key], (len(CASES), len(rows)))
+        out[name] = full.reshape(-1)
+    out["crack_overturning_utilisation"] = stability.fos_utilisation(
+        out["crack_fos_overturning"], config.fos_overturning_required
+    )
     out["crack_sliding_utilisation"] = stability.fos_utilisation(
         out["crack_fos_sliding"], config.fos_sliding_required
     )
 
-    # governing check: the largest utilisation; a floating case governs by definition
-    utils = np.stack([out[f"{c}_utilisation"] for c in CHECKS], axis=1)
-    floating = state == stability.FLOATING
-    filled = np.where(np.isnan(utils), -np.inf, utils)
-    idx = np.argmax(filled, axis=1)
-    utilisation = np.take_along_axis(filled, idx[:, None], axis=1)[:, 0]
-    # a resultant outside the base means M_O > M_R: the wall overturns, whatever the
-    # (infinite) edge pressure says
-    outside = state == stability.OUTSIDE_BASE
-    governing = np.where(outside, "overturning", np.asarray(CHECKS)[idx])
+    # governing check: the largest utilisation. A resultant outside the base means M_O > M_R:
+    # the wall overturns, whatever the (infinite) edge pressure says; a floating case governs
+    # by definition.
+    utilisation, index = _governing([out[f"{c}_utilisation"] for c in CHECKS])
+    state = np.broadcast_to(state, shape).reshape(-1)
+    floating = state == STATE_CODES[stability.FLOATING]
+    outside = state == STATE_CODES[stability.OUTSIDE_BASE]
+    index[outside] = CHECKS.index("overturning")
+    index[floating] = len(CHECKS)
     out["utilisation"] = np.where(floating | outside, np.inf, utilisation)
-    out["governing_check"] = np.where(floating, "vertical_load", governing)
+    out["governing_check"] = index
     out["margin"] = 1.0 - out["utilisation"]
     out["state"] = state
-    out["in_middle_third"] = state == stability.WITHIN_MIDDLE_THIRD
-    out["water_height_m"] = hw
-    out["case"] = np.repeat(np.asarray(CASES), n)
+    out["in_middle_third"] = state == STATE_CODES[stability.WITHIN_MIDDLE_THIRD]
+    out["case"] = np.repeat(np.arange(len(CASES), dtype=np.int8), n)
     out["wall_index"] = np.tile(np.arange(n), len(CASES))
     return out
+
+
+def decode(out: Mapping[str, NDArray]) -> dict[str, NDArray]:
+    """The engine's output with ``state``, ``governing_check`` and ``case`` as words."""
+    words = dict(out)
+    words["state"] = np.asarray(stability.STATES)[out["state"]]
+    words["governing_check"] = np.asarray(GOVERNING)[out["governing_check"]]
+    words["case"] = np.asarray(CASES)[out["case"]]
+    return words

@@ -90,6 +90,7 @@ def screen_file(
     sheet: str | int | None = None,
     config: Config | None = None,
     history: str | Path | None = None,
+    progress: Progress | None = None,
 ) -> JobResult:
     """Load, screen and locate a register file, without writing anything.
 
@@ -100,7 +101,12 @@ def screen_file(
     config = config or Config()
     loaded = load_register(register_path, mapping=mapping, sheet=sheet)
     run = evaluate(
-        loaded.frame, config, labels=loaded.labels, shown=loaded.shown, history_points=lean_points(history)
+        loaded.frame,
+        config,
+        labels=loaded.labels,
+        shown=loaded.shown,
+        history_points=lean_points(history),
+        progress=progress,
     )
     info = RunInfo(
         input_file=Path(register_path).name,

@@ -15,10 +15,11 @@ import pandas as pd
 
 from screening import priority
 from screening.config import CASES, Config
-from screening.engine import run_cases
+from screening.engine import GOVERNING, run_cases
 from screening.history import INPUT_COLUMNS, lean_rates
 from screening.prepare import Prepared, prepare
-from screening.stability import FLOATING, OUTSIDE_BASE
+from screening.progress import Progress
+from screening.stability import FLOATING, OUTSIDE_BASE, STATES
 
 RESULT_COLUMNS = (
     "wall_id",
@@ -73,23 +74,35 @@ class Screening:
         return int(errors["row"].nunique())
 
 
-def screen_prepared(prepared: Prepared, config: Config) -> pd.DataFrame:
-    """Long results (one row per wall and case) of a prepared register, in chunks."""
+def screen_prepared(prepared: Prepared, config: Config, progress: Progress | None = None) -> pd.DataFrame:
+    """Long results (one row per wall and case, wall by wall) of a prepared register.
+
+    Registers larger than ``config.chunk_size`` go through the engine in chunks, so the
+    engine's working memory stays bounded; ``progress`` hears of each chunk.
+    """
     n = len(prepared.walls)
     size = max(int(config.chunk_size), 1)
+    ids = prepared.walls["wall_id"].to_numpy(dtype=object)
     pieces = []
     for start in range(0, max(n, 1), size):
         chunk = {k: v[start : start + size] for k, v in prepared.inputs.items()}
+        m = len(chunk["height_m"])
+        if progress is not None and n > size:
+            progress(f"screening walls {start + 1:,}-{start + m:,} of {n:,}")
         out = run_cases(chunk, config)
-        index = out.pop("wall_index") + start
-        frame = pd.DataFrame(out)
-        frame.insert(0, "wall_id", prepared.walls["wall_id"].to_numpy()[index])
+        # the engine is case-major; the results are wall by wall
+        order = np.arange(len(CASES) * m).reshape(len(CASES), m).T.reshape(-1)
+        index = out.pop("wall_index")[order] + start
+        frame = pd.DataFrame({k: v[order] for k, v in out.items()})
+        frame["state"] = pd.Categorical.from_codes(frame["state"], categories=list(STATES))
+        frame["governing_check"] = pd.Categorical.from_codes(
+            frame["governing_check"], categories=list(GOVERNING)
+        )
+        frame["case"] = pd.Categorical.from_codes(frame["case"], categories=list(CASES), ordered=True)
+        frame.insert(0, "wall_id", ids[index])
         frame["_wall"] = index
         pieces.append(frame)
-    results = pd.concat(pieces, ignore_index=True)
-    order = pd.Categorical(results["case"], categories=CASES, ordered=True)
-    results = results.assign(_case=order).sort_values(["_wall", "_case"], kind="stable")
-    return results.drop(columns=["_case"]).reset_index(drop=True)
+    return pd.concat(pieces, ignore_index=True)
 
 
 def summarise_walls(results: pd.DataFrame, walls: pd.DataFrame) -> pd.DataFrame:
@@ -210,6 +223,7 @@ def evaluate(
     config: Config | None = None,
     *,
     history_points: pd.DataFrame | None = None,
+    progress: Progress | None = None,
     **kwargs: object,
 ) -> Screening:
     """Prepare and screen a register; keep problems, assumptions and the per-wall summary."""
@@ -219,7 +233,7 @@ def evaluate(
     if len(prepared.walls) == 0:
         empty = pd.DataFrame({c: pd.Series(dtype=object) for c in RESULT_COLUMNS})
         return Screening(prepared, empty, pd.DataFrame(), prepared.problems, config)
-    results = screen_prepared(prepared, config)
+    results = screen_prepared(prepared, config, progress)
     walls = add_priority(summarise_walls(results, prepared.walls), prepared.walls, results, config)
     problems = pd.concat([prepared.problems, _floating_problems(results, prepared.walls)], ignore_index=True)
     return Screening(prepared, results, walls, problems, config)

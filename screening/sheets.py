@@ -25,7 +25,7 @@ from matplotlib.patches import Polygon
 
 from screening import __version__
 from screening.config import CASES, Config
-from screening.engine import ENGINE_INPUTS, run_cases
+from screening.engine import ENGINE_INPUTS, decode, run_cases
 from screening.io.writers import write_text_atomic
 from screening.report import CAUTION
 from screening.schema import UNITS
@@ -557,7 +557,7 @@ def write_sheets(
     if sub.empty:
         return {}
     inputs = {k: sub[k].to_numpy(dtype=float) for k in ENGINE_INPUTS}
-    d = run_cases(inputs, config, details=True)
+    d = decode(run_cases(inputs, config, details=True))
     n = len(sub)
     tiled = np.tile(np.arange(n), len(CASES))
     g = sub["soil_unit_weight_kn_m3"].to_numpy(float)[tiled]

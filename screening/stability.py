@@ -46,7 +46,7 @@ def resultant_position(
 
 def base_pressure(
     vertical_kn_m: ArrayLike, resultant_from_toe_m: ArrayLike, base_width_m: ArrayLike
-) -> tuple[FloatArray, FloatArray, NDArray[np.str_]]:
+) -> tuple[FloatArray, FloatArray, NDArray[np.int8]]:
     r"""Toe and heel bearing pressure under a rigid base with no tension.
 
     - |e| ≤ B/6: trapezoid, q = V/B·(1 ± 6e/B);
@@ -68,8 +68,8 @@ def base_pressure(
     -------
     toe_kpa, heel_kpa : numpy.ndarray
         Pressure at the toe and at the heel [kPa].
-    state : numpy.ndarray of str
-        One of :data:`STATES`.
+    state : numpy.ndarray of int8
+        Index into :data:`STATES`.
 
     References
     ----------
@@ -95,11 +95,11 @@ def base_pressure(
     heel = np.where(outside_base, np.where(x_r >= b, np.inf, 0.0), heel)
     toe = np.where(floating, np.nan, toe)
     heel = np.where(floating, np.nan, heel)
-    state = np.select(
-        [floating, outside_base, middle],
-        [FLOATING, OUTSIDE_BASE, WITHIN_MIDDLE_THIRD],
-        OUTSIDE_MIDDLE_THIRD,
-    )
+    code = {name: k for k, name in enumerate(STATES)}
+    state = np.full(v.shape, code[OUTSIDE_MIDDLE_THIRD], dtype=np.int8)
+    state[middle] = code[WITHIN_MIDDLE_THIRD]
+    state[outside_base] = code[OUTSIDE_BASE]
+    state[floating] = code[FLOATING]
     return toe, heel, state
 
 

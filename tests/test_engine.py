@@ -14,7 +14,7 @@ from scipy import integrate
 
 from benchmarks.scalar import screen_wall
 from screening import Config, screen
-from screening.engine import ENGINE_INPUTS, run_cases
+from screening.engine import ENGINE_INPUTS, decode, run_cases
 from screening.pipeline import RESULT_COLUMNS
 from screening.prepare import prepare
 from screening.stability import base_pressure
@@ -224,7 +224,7 @@ def test_floating_wall_is_an_error_state() -> None:
     reg = pd.DataFrame([worked_wall("F", 2.0, drainage="blocked")])
     inputs = dict(prepare(reg).inputs)
     inputs["wall_unit_weight_kn_m3"] = np.array([4.0])
-    out = run_cases(inputs, Config())
+    out = decode(run_cases(inputs, Config()))
     blocked = list(out["case"]).index("blocked")
     assert out["vertical_kn_m"][blocked] < 0
     assert out["state"][blocked] == "floating"
