@@ -15,30 +15,10 @@ from numpy.typing import NDArray
 
 from screening import earth_pressure, section, stability
 from screening.config import CASES, Config
+from screening.schema import ENGINE_INPUTS
 
 FloatArray = NDArray[np.float64]
 
-ENGINE_INPUTS = (
-    "height_m",
-    "base_width_m",
-    "top_width_m",
-    "front_batter_m",
-    "retained_height_m",
-    "lean_deg",
-    "crack_height_m",
-    "wall_unit_weight_kn_m3",
-    "soil_unit_weight_kn_m3",
-    "soil_saturated_unit_weight_kn_m3",
-    "soil_friction_deg",
-    "wall_friction_deg",
-    "backfill_slope_deg",
-    "surcharge_kpa",
-    "base_friction_deg",
-    "joint_friction_deg",
-    "allowable_bearing_kpa",
-    "surveyed_water_height_m",
-)
-"""Columns the engine reads (``crack_height_m`` NaN where no crack is recorded)."""
 
 BASE_CHECKS = ("middle_third", "bearing", "sliding", "overturning")
 CRACK_CHECKS = ("crack_middle_third", "crack_sliding", "crack_overturning")

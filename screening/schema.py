@@ -35,6 +35,16 @@ NUMERIC = (
     "condition_rating",
 )
 
+LOCATION = ("lat", "lon", "easting", "northing")
+
+ENGINE_INPUTS = (
+    *(c for c in NUMERIC if c not in (*LOCATION, "water_height_m", "condition_rating")),
+    "surveyed_water_height_m",
+)
+"""Columns the engine reads, blanks filled (``crack_height_m`` NaN where no crack is recorded;
+``surveyed_water_height_m`` is the water of the surveyed case, from ``water_height_m`` or
+``drainage``)."""
+
 CODED = {
     "material": MATERIALS,
     "foundation": FOUNDATIONS,
