@@ -138,6 +138,10 @@ METHOD_TEXT: list[tuple[str, str]] = [
 ]
 
 
+EXCEL_MAX_ROWS = 1_048_576
+"""Rows in one worksheet (Excel's limit)."""
+
+
 class _Formats:
     def __init__(self, book: xlsxwriter.Workbook):
         self.header = book.add_format(
@@ -194,6 +198,7 @@ def _column_values(values: pd.Series, kind: str) -> list[Any]:
 
 
 def _table(
+    notes: list[str],
     sheet: Worksheet,
     frame: pd.DataFrame,
     columns: Sequence[tuple[str, str, str]],
@@ -209,6 +214,11 @@ def _table(
     are column formats, which xlsxwriter applies to cells written without one.
     """
     cols = [c for c in columns if c[0] in frame.columns]
+    room = EXCEL_MAX_ROWS - start_row - 1
+    if len(frame) > room:
+        notes.append(f"sheet '{sheet.name}' shows the first {room:,} of {len(frame):,} rows "
+                         "(the row limit of a worksheet); the CSV files have them all")
+        frame = frame.head(room)
     sheet.set_row(start_row, 45)
     formats = {"num2": f.num2, "num3": f.num3, "int": f.int}
     for c, (name, header, kind) in enumerate(cols):
@@ -299,6 +309,7 @@ def write_workbook(
     """Write ``report.xlsx`` atomically. See the module docstring for the sheets."""
 
     def build(tmp: Path) -> None:
+        notes: list[str] = []  # sheets cut at the row limit, for the settings sheet
         book = xlsxwriter.Workbook(
             str(tmp),
             {
@@ -311,7 +322,7 @@ def write_workbook(
         f = _Formats(book)
 
         sheet = book.add_worksheet("Ranked walls")
-        _table(sheet, walls, SUMMARY_COLUMNS, f, widths={"reason": 70, "name": 30})
+        _table(notes, sheet, walls, SUMMARY_COLUMNS, f, widths={"reason": 70, "name": 30})
         _colour_utilisation(sheet, walls, SUMMARY_COLUMNS, f)
 
         first = walls[walls["priority_band"] == "inspect_first"].head(look_first)
@@ -342,7 +353,7 @@ def write_workbook(
                 "sheet",
             )
         ]
-        _table(sheet, first, short, f, widths={"reason": 90, "name": 30}, start_row=3)
+        _table(notes, sheet, first, short, f, widths={"reason": 90, "name": 30}, start_row=3)
         _colour_utilisation(sheet, first, short, f, start_row=3)
 
         if changes is not None:
@@ -360,7 +371,7 @@ def write_workbook(
                 ("rank_before", "Rank before", "int"),
                 ("rank_after", "Rank after", "int"),
             ]
-            _table(sheet, changes, change_cols, f, widths={"inputs_changed": 70})
+            _table(notes, sheet, changes, change_cols, f, widths={"inputs_changed": 70})
 
         sheet = book.add_worksheet("Results by case")
         shown = results
@@ -381,7 +392,7 @@ def write_workbook(
         cols = [
             (c, RESULT_HEADERS.get(c, c.replace("_", " ")), _kind(c, results[c])) for c in results.columns
         ]
-        _table(sheet, shown, cols, f, start_row=start)
+        _table(notes, sheet, shown, cols, f, start_row=start)
         _colour_utilisation(sheet, shown, cols, f, start_row=start)
 
         sheet = book.add_worksheet("Rejected rows")
@@ -394,7 +405,7 @@ def write_workbook(
             ("severity", "Severity", "word"),
             ("message", "What was expected", "word"),
         ]
-        _table(sheet, problems, prob_cols, f, widths={"message": 80}, start_row=2)
+        _table(notes, sheet, problems, prob_cols, f, widths={"message": 80}, start_row=2)
 
         # the same default is usually used for many walls: one row per default here, and one
         # row per wall on the next sheet (every single one is in assumptions.csv)
@@ -406,10 +417,11 @@ def write_workbook(
             ("source", "Source", "text"),
             ("walls", "Walls", "int"),
         ]
-        _table(sheet, summary, ass_cols, f, widths={"source": 90, "value": 14})
+        _table(notes, sheet, summary, ass_cols, f, widths={"source": 90, "value": 14})
         sheet = book.add_worksheet("Assumed per wall")
         per_wall = _assumptions_per_wall(assumptions)
         _table(
+            notes,
             sheet,
             per_wall,
             [
@@ -424,7 +436,7 @@ def write_workbook(
         sheet = book.add_worksheet("Settings")
         sheet.set_column(0, 0, 34)
         sheet.set_column(1, 1, 100)
-        r = _key_value(sheet, provenance, f)
+        r = _key_value(sheet, [*provenance, *(("note", t) for t in notes)], f)
         flat = _flatten(settings)
         _key_value(sheet, flat, f, start=r + 1)
 

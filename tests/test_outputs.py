@@ -133,3 +133,18 @@ def test_outputs_are_replaced_atomically(run_dir: Path, monkeypatch) -> None:
         writers.write_atomic(target, broken)
     assert target.read_bytes() == before
     assert not [p for p in run_dir.iterdir() if p.name.endswith((".part.csv", ".part"))]
+
+
+def test_sheets_longer_than_excel_allows_are_cut_with_a_note(tmp_path: Path, monkeypatch) -> None:
+    # a worksheet holds 1,048,576 rows (Excel's limit); a smaller limit stands in for it here
+    import screening.report as report
+    from screening import evaluate
+
+    monkeypatch.setattr(report, "EXCEL_MAX_ROWS", 5)
+    run = evaluate(pd.DataFrame([worked_wall(f"W{i}", 2.0) for i in range(8)]))
+    report.write_workbook(tmp_path / "r.xlsx", walls=run.walls, results=run.results, problems=run.problems,
+                          assumptions=run.prepared.assumptions, settings={}, provenance=[("tool", "test")])
+    book = openpyxl.load_workbook(tmp_path / "r.xlsx")
+    assert book["Ranked walls"].max_row == 5
+    notes = [r[1] for r in book["Settings"].iter_rows(values_only=True) if r[0] == "note"]
+    assert any("'Ranked walls' shows the first 4 of 8 rows" in n for n in notes)
