@@ -77,6 +77,8 @@ class _Log:
         values: pd.Series | None = None,
     ) -> None:
         mask = mask.fillna(False).astype(bool)
+        if severity == "warning" and column in self.flagged:
+            mask &= ~self.flagged[column]  # a cell already in error needs no warning too
         if not mask.any():
             return
         hit = self.frame.loc[mask]
