@@ -74,7 +74,7 @@ def engine_rows(sizes: list[int], scalar_n: int) -> list[dict[str, object]]:
     for n in sizes:
         inputs = prepare(synthetic_register(n)).inputs
 
-        def engine(inputs: dict = inputs) -> None:
+        def engine(inputs: dict = inputs, n: int = n) -> None:
             # as the pipeline runs it: chunks of config.chunk_size walls
             for start in range(0, n, size):
                 run_cases({k: v[start : start + size] for k, v in inputs.items()}, config)

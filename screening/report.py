@@ -216,8 +216,10 @@ def _table(
     cols = [c for c in columns if c[0] in frame.columns]
     room = EXCEL_MAX_ROWS - start_row - 1
     if len(frame) > room:
-        notes.append(f"sheet '{sheet.name}' shows the first {room:,} of {len(frame):,} rows "
-                         "(the row limit of a worksheet); the CSV files have them all")
+        notes.append(
+            f"sheet '{sheet.name}' shows the first {room:,} of {len(frame):,} rows "
+            "(the row limit of a worksheet); the CSV files have them all"
+        )
         frame = frame.head(room)
     sheet.set_row(start_row, 45)
     formats = {"num2": f.num2, "num3": f.num3, "int": f.int}

@@ -142,8 +142,15 @@ def test_sheets_longer_than_excel_allows_are_cut_with_a_note(tmp_path: Path, mon
 
     monkeypatch.setattr(report, "EXCEL_MAX_ROWS", 5)
     run = evaluate(pd.DataFrame([worked_wall(f"W{i}", 2.0) for i in range(8)]))
-    report.write_workbook(tmp_path / "r.xlsx", walls=run.walls, results=run.results, problems=run.problems,
-                          assumptions=run.prepared.assumptions, settings={}, provenance=[("tool", "test")])
+    report.write_workbook(
+        tmp_path / "r.xlsx",
+        walls=run.walls,
+        results=run.results,
+        problems=run.problems,
+        assumptions=run.prepared.assumptions,
+        settings={},
+        provenance=[("tool", "test")],
+    )
     book = openpyxl.load_workbook(tmp_path / "r.xlsx")
     assert book["Ranked walls"].max_row == 5
     notes = [r[1] for r in book["Settings"].iter_rows(values_only=True) if r[0] == "note"]
