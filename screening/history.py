@@ -25,6 +25,7 @@ import pandas as pd
 import shapely
 
 from screening.errors import ScreeningError
+from screening.schema import ENGINE_INPUTS
 
 RUNS = "runs"
 WALLS = "wall_history"
@@ -46,24 +47,14 @@ RUN_COLUMNS: dict[str, str] = {
 # the inputs compared between runs, then the results kept per wall
 INPUT_COLUMNS: Sequence[str] = (
     "survey_date",
-    "height_m",
-    "base_width_m",
-    "top_width_m",
-    "front_batter_m",
-    "retained_height_m",
-    "lean_deg",
-    "crack_height_m",
+    *ENGINE_INPUTS,
     "material",
-    "wall_unit_weight_kn_m3",
     "foundation",
-    "allowable_bearing_kpa",
-    "base_friction_deg",
     "drainage",
-    "surveyed_water_height_m",
     "condition_rating",
     "consequence",
 )
-RESULT_COLUMNS: Sequence[str] = (
+KEPT_RESULTS: Sequence[str] = (
     "name",
     "worst_case",
     "governing_check",
@@ -119,7 +110,7 @@ def _create(path: Path) -> None:
         )
         pyogrio.write_dataframe(runs, tmp, layer=RUNS, driver="GPKG")
         cols = {"run_id": pd.Series(dtype="string"), "wall_id": pd.Series(dtype="string")}
-        for c in (*INPUT_COLUMNS, *RESULT_COLUMNS):
+        for c in (*INPUT_COLUMNS, *KEPT_RESULTS):
             t = _sql_type(c)
             cols[c] = pd.Series(dtype="string" if t == "TEXT" else "int64" if t == "INTEGER" else "float64")
         layer = gpd.GeoDataFrame(cols, geometry=gpd.GeoSeries([], crs=f"EPSG:{SRS_ID}"))
@@ -172,7 +163,7 @@ def record_run(
     path.parent.mkdir(parents=True, exist_ok=True)
     if not path.exists():
         _create(path)
-    cols = ["run_id", "wall_id", *INPUT_COLUMNS, *RESULT_COLUMNS]
+    cols = ["run_id", "wall_id", *INPUT_COLUMNS, *KEPT_RESULTS]
     frame = walls.reindex(columns=[c for c in cols if c != "run_id"]).copy()
     frame.insert(0, "run_id", run["run_id"])
     if "survey_date" in frame:
@@ -233,7 +224,7 @@ def list_runs(path: str | Path) -> pd.DataFrame:
 
 def run_walls(path: str | Path, run_id: str) -> pd.DataFrame:
     """The walls of one run (without geometry)."""
-    cols = ["wall_id", *INPUT_COLUMNS, *RESULT_COLUMNS]
+    cols = ["wall_id", *INPUT_COLUMNS, *KEPT_RESULTS]
     con = _connect(Path(path))
     try:
         frame = pd.read_sql_query(
