@@ -11,6 +11,7 @@ import json
 from pathlib import Path
 from typing import Annotated
 
+import pandas as pd
 import typer
 from rich.console import Console
 from rich.markup import escape
@@ -158,13 +159,10 @@ def _print_changes(job: JobResult) -> None:
         print_changes(job.changes)
 
 
-def print_changes(changes: object, limit: int = 12) -> None:
+def print_changes(changes: pd.DataFrame, limit: int = 12) -> None:
     """Counts by status and the first changed walls."""
-    import pandas as pd
-
     from screening.history import describe_change
 
-    assert isinstance(changes, pd.DataFrame)
     counts = changes["status"].value_counts()
     console.print(
         "  "
@@ -340,7 +338,6 @@ def compare(
     out: Annotated[Path, typer.Option("--out", "-o", help="CSV of the changes")] = Path("changes.csv"),
 ) -> None:
     """What changed between two runs: the last two in a history, two named runs, or two result folders."""
-    import pandas as pd
 
     from screening.history import compare as compare_runs
     from screening.history import list_runs, run_walls

@@ -231,24 +231,47 @@ def write_explanations(job: JobResult, wall_ids: list[str], out_dir: str | Path)
 
 def render_map(job: JobResult, out_dir: Path, options: MapOptions | None = None) -> Path:
     """Write ``map.html`` for a run."""
-    from screening.mapview import build_map, write_map
-
-    options = options or MapOptions()
-    info = job.info
-    m = build_map(
+    return _write_map(
+        out_dir,
         job.walls,
         job.geometry,
         job.screening.results,
-        title=f"Retaining wall screening: {info.input_file}",
-        subtitle=f"Run {info.run_time} UTC, wallscreen {info.tool_version}; "
-        f"{len(job.walls)} walls screened, {job.n_rejected} rows rejected",
-        sheets=job.sheets,
+        dict(provenance(job)),
+        job.sheets,
+        job.map_layers,
+        options,
+    )
+
+
+def _write_map(
+    folder: Path,
+    walls: pd.DataFrame,
+    geometry: np.ndarray,
+    results: pd.DataFrame,
+    info: dict[str, Any],
+    sheets: dict[str, str],
+    layers: dict[str, dict[str, str]],
+    options: MapOptions | None,
+) -> Path:
+    """The map of a run, titled from its provenance (the keys of :func:`provenance`)."""
+    from screening.mapview import build_map, write_map
+
+    options = options or MapOptions()
+    page = build_map(
+        walls,
+        geometry,
+        results,
+        title=f"Retaining wall screening: {info.get('input file', '')}",
+        subtitle=f"Run {info.get('run time (UTC)', '')} UTC, {info.get('tool', '')}; "
+        f"{info.get('walls screened', len(walls))} walls screened, "
+        f"{info.get('rows rejected', 0)} rows rejected",
+        sheets=sheets,
         assets_url=options.assets_url,
         assets_dir=options.assets_dir,
         tiles=options.tiles,
-        extra_layers=job.map_layers,
+        extra_layers=layers,
     )
-    return write_map(m, out_dir / "map.html")
+    return write_map(page, folder / "map.html")
 
 
 def write_outputs(
@@ -315,7 +338,6 @@ def rerender_map(results_dir: str | Path, options: MapOptions | None = None) -> 
     import geopandas as gpd
 
     from screening.errors import RegisterError
-    from screening.mapview import build_map, write_map
 
     folder = Path(results_dir)
     needed = [folder / "walls.gpkg", folder / "results.csv", folder / "run.json"]
@@ -345,22 +367,7 @@ def rerender_map(results_dir: str | Path, options: MapOptions | None = None) -> 
         layers["Changed since the last run"] = {
             str(r["wall_id"]): describe_change(r) for _, r in moved.iterrows()
         }
-    options = options or MapOptions()
-    page = build_map(
-        walls,
-        geometry,
-        results,
-        title=f"Retaining wall screening: {info.get('input file', '')}",
-        subtitle=f"Run {info.get('run time (UTC)', '')} UTC, {info.get('tool', '')}; "
-        f"{info.get('walls screened', len(walls))} walls screened, "
-        f"{info.get('rows rejected', 0)} rows rejected",
-        sheets=sheets,
-        assets_url=options.assets_url,
-        assets_dir=options.assets_dir,
-        tiles=options.tiles,
-        extra_layers=layers,
-    )
-    return write_map(page, folder / "map.html")
+    return _write_map(folder, walls, geometry, results, info, sheets, layers, options)
 
 
 def sheet_filename(wall_id: str) -> str:

@@ -19,7 +19,7 @@ from screening.engine import GOVERNING, run_cases
 from screening.history import INPUT_COLUMNS, lean_rates
 from screening.prepare import Prepared, prepare
 from screening.progress import Progress
-from screening.stability import FLOATING, OUTSIDE_BASE, STATES
+from screening.stability import FLOATING, STATES
 
 RESULT_COLUMNS = (
     "wall_id",
@@ -269,4 +269,4 @@ def screen(register: pd.DataFrame, config: Config | None = None) -> pd.DataFrame
     return run.results[list(RESULT_COLUMNS)].reset_index(drop=True)
 
 
-__all__ = ["OUTSIDE_BASE", "RESULT_COLUMNS", "Screening", "evaluate", "screen"]
+__all__ = ["RESULT_COLUMNS", "Screening", "evaluate", "screen"]

@@ -191,7 +191,7 @@ def _column_values(values: pd.Series, kind: str) -> list[Any]:
     missing = values.isna().to_numpy()
     text = values.astype(object).where(~values.isna(), "").astype(str)
     if kind == "word":
-        text = text.map(lambda t: BAND_LABELS.get(t, t)).str.replace("_", " ", regex=False)
+        text = text.replace(BAND_LABELS).str.replace("_", " ", regex=False)
     out = text.to_numpy(dtype=object)
     out[missing] = None
     return out.tolist()

@@ -53,7 +53,6 @@ CODED = {
     "consequence": None,
 }
 
-TEXT = ("wall_id", "name", "geometry", "notes")
 DATES = ("survey_date",)
 
 COLUMNS = (

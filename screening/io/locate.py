@@ -38,12 +38,8 @@ def locate(walls: pd.DataFrame, crs: str | None = None) -> tuple[np.ndarray, pd.
     has_wkt = wkt.notna().to_numpy()
     if has_wkt.any():
         parsed = shapely.from_wkt(wkt[has_wkt].astype(str).to_numpy(), on_invalid="ignore")
-        ok = np.array(
-            [
-                g is not None and not g.is_empty and g.geom_type in ("Point", "LineString", "MultiLineString")
-                for g in parsed
-            ]
-        )
+        # Point, LineString or MultiLineString (GEOS type ids 0, 1, 5); unparsable WKT gives None (-1)
+        ok = np.isin(shapely.get_type_id(parsed), [0, 1, 5]) & ~shapely.is_empty(parsed)
         idx = np.flatnonzero(has_wkt)
         geom[idx[ok]] = parsed[ok]
         bad = np.zeros(n, dtype=bool)
