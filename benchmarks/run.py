@@ -25,7 +25,7 @@ import pandas as pd
 
 from benchmarks.scalar import screen_wall
 from screening.config import Config
-from screening.engine import ENGINE_INPUTS, run_cases
+from screening.core.engine import ENGINE_INPUTS, run_cases
 from screening.prepare import prepare
 
 

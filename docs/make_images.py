@@ -44,7 +44,7 @@ def map_screenshot(run: Path) -> None:
 def sheet_figure(run: Path) -> None:
     import pandas as pd
 
-    from screening.job import sheet_filename
+    from screening.outputs import sheet_filename
 
     walls = pd.read_csv(run / "walls.csv")
     cracked = walls[walls["crack_height_m"].notna()]

@@ -21,7 +21,7 @@ from screening import __version__
 from screening.config import load_config
 from screening.errors import ScreeningError
 from screening.job import JobResult, MapOptions, rerender_map, screen_file, write_outputs
-from screening.sheets import flagged_walls
+from screening.outputs.sheets import flagged_walls
 
 EXIT_OK = 0
 EXIT_SOME_REJECTED = 1

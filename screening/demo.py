@@ -11,8 +11,8 @@ from __future__ import annotations
 from pathlib import Path
 
 from screening.job import JobResult, MapOptions, record_history, screen_file, write_outputs
+from screening.outputs.sheets import flagged_walls
 from screening.progress import Progress
-from screening.sheets import flagged_walls
 
 SAMPLE = Path(__file__).resolve().parents[1] / "sample_inventory"
 

@@ -17,6 +17,7 @@ from screening.config import Config
 from screening.io import LoadedRegister, load_register
 from screening.io.locate import locate
 from screening.io.writers import write_csv, write_text_atomic
+from screening.outputs import sheet_filename
 from screening.pipeline import RESULT_COLUMNS, Screening, evaluate
 from screening.progress import Progress
 
@@ -220,8 +221,8 @@ def record_history(job: JobResult) -> Any:
 
 
 def write_explanations(job: JobResult, wall_ids: list[str], out_dir: str | Path) -> dict[str, str]:
-    """Calculation sheets for the given walls (see :mod:`screening.sheets`)."""
-    from screening.sheets import write_sheets
+    """Calculation sheets for the given walls (see :mod:`screening.outputs.sheets`)."""
+    from screening.outputs.sheets import write_sheets
 
     prepared = job.screening.prepared
     return write_sheets(
@@ -254,7 +255,7 @@ def _write_map(
     options: MapOptions | None,
 ) -> Path:
     """The map of a run, titled from its provenance (the keys of :func:`provenance`)."""
-    from screening.mapview import build_map, write_map
+    from screening.outputs.webmap import build_map, write_map
 
     options = options or MapOptions()
     page = build_map(
@@ -283,8 +284,8 @@ def write_outputs(
     sheet_ids: list[str] | None = None,
 ) -> dict[str, Path]:
     """Write every output of a run into ``out_dir``, each file atomically."""
-    from screening.io.gis import write_geopackage
-    from screening.report import write_workbook
+    from screening.outputs.geopackage import write_geopackage
+    from screening.outputs.workbook import write_workbook
 
     step = progress or (lambda _name: None)
     out = Path(out_dir)
@@ -368,12 +369,3 @@ def rerender_map(results_dir: str | Path, options: MapOptions | None = None) -> 
             str(r["wall_id"]): describe_change(r) for _, r in moved.iterrows()
         }
     return _write_map(folder, walls, geometry, results, info, sheets, layers, options)
-
-
-def sheet_filename(wall_id: str) -> str:
-    """A safe, unique file name for a wall's calculation sheet."""
-    import re
-
-    slug = re.sub(r"[^A-Za-z0-9_-]+", "_", wall_id).strip("_")[:40] or "wall"
-    digest = hashlib.sha1(wall_id.encode("utf-8")).hexdigest()[:8]
-    return f"{slug}-{digest}.html"

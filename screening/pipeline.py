@@ -15,11 +15,11 @@ import pandas as pd
 
 from screening import priority
 from screening.config import CASES, Config
-from screening.engine import GOVERNING, run_cases
+from screening.core.engine import GOVERNING, run_cases
+from screening.core.stability import FLOATING, STATES
 from screening.history import INPUT_COLUMNS, lean_rates
 from screening.prepare import Prepared, prepare
 from screening.progress import Progress
-from screening.stability import FLOATING, STATES
 
 RESULT_COLUMNS = (
     "wall_id",

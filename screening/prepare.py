@@ -16,7 +16,7 @@ import pandas as pd
 
 from screening import schema
 from screening.config import Config
-from screening.engine import ENGINE_INPUTS
+from screening.core.engine import ENGINE_INPUTS
 
 PROBLEM_COLUMNS = ("row", "wall_id", "column", "value", "severity", "message")
 ASSUMPTION_COLUMNS = ("wall_id", "row", "column", "value", "source")

@@ -6,6 +6,7 @@ One glossary: these names are also the parameter names of the engine.
 from __future__ import annotations
 
 from screening.config import DRAINAGE_STATES, FOUNDATIONS, MATERIALS
+from screening.core.engine import ENGINE_INPUTS as ENGINE_INPUTS  # the engine declares what it reads
 
 REQUIRED = ("wall_id", "height_m", "base_width_m", "top_width_m")
 
@@ -36,14 +37,6 @@ NUMERIC = (
 )
 
 LOCATION = ("lat", "lon", "easting", "northing")
-
-ENGINE_INPUTS = (
-    *(c for c in NUMERIC if c not in (*LOCATION, "water_height_m", "condition_rating")),
-    "surveyed_water_height_m",
-)
-"""Columns the engine reads, blanks filled (``crack_height_m`` NaN where no crack is recorded;
-``surveyed_water_height_m`` is the water of the surveyed case, from ``water_height_m`` or
-``drainage``)."""
 
 CODED = {
     "material": MATERIALS,

@@ -12,7 +12,7 @@ import pandas as pd
 from typer.testing import CliRunner
 
 from screening.cli import app
-from screening.job import sheet_filename
+from screening.outputs import sheet_filename
 
 runner = CliRunner()
 

@@ -9,7 +9,7 @@ from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 from scipy import integrate
 
-from screening.earth_pressure import base_uplift, coulomb_ka, effective_thrust, water_thrust
+from screening.core.earth_pressure import base_uplift, coulomb_ka, effective_thrust, water_thrust
 
 GW = 9.81
 

@@ -13,11 +13,11 @@ from numpy.testing import assert_allclose
 from scipy import integrate
 
 from benchmarks.scalar import screen_wall
-from screening import Config, screen
-from screening.engine import ENGINE_INPUTS, decode, run_cases
+from screening import Config, schema, screen
+from screening.core.engine import ENGINE_INPUTS, decode, run_cases
+from screening.core.stability import base_pressure
 from screening.pipeline import RESULT_COLUMNS
 from screening.prepare import prepare
-from screening.stability import base_pressure
 from tests.conftest import worked_wall
 
 
@@ -245,3 +245,9 @@ def test_run_cases_is_vectorised_over_arrays() -> None:
     p = prepare(reg)
     out = run_cases(p.inputs, Config())
     assert out["utilisation"].shape == (3 * n,)
+
+
+def test_engine_inputs_are_canonical_numeric_columns():
+    # the engine declares its inputs; each must be a canonical numeric column of the register
+    # (inventory.md), apart from the surveyed water height that preparation derives
+    assert set(ENGINE_INPUTS) - {"surveyed_water_height_m"} <= set(schema.NUMERIC)

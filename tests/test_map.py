@@ -12,7 +12,7 @@ import pytest
 from typer.testing import CliRunner
 
 from screening.cli import app
-from screening.mapview import OVERTURNS_COLOUR, margin_class, margin_colours
+from screening.outputs.webmap import OVERTURNS_COLOUR, margin_class, margin_colours
 from tests.browser import browser_page, leaflet_dir
 from tests.conftest import worked_wall
 

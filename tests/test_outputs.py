@@ -137,7 +137,7 @@ def test_outputs_are_replaced_atomically(run_dir: Path, monkeypatch) -> None:
 
 def test_sheets_longer_than_excel_allows_are_cut_with_a_note(tmp_path: Path, monkeypatch) -> None:
     # a worksheet holds 1,048,576 rows (Excel's limit); a smaller limit stands in for it here
-    import screening.report as report
+    import screening.outputs.workbook as report
     from screening import evaluate
 
     monkeypatch.setattr(report, "EXCEL_MAX_ROWS", 5)

@@ -8,7 +8,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
-from screening.section import back_wedge, lever_after_lean, wall_section
+from screening.core.section import back_wedge, lever_after_lean, wall_section
 
 dims = st.tuples(
     st.floats(0.5, 8.0),  # H

@@ -11,7 +11,7 @@ import pytest
 from typer.testing import CliRunner
 
 from screening.cli import app
-from screening.job import sheet_filename
+from screening.outputs import sheet_filename
 from screening.pipeline import RESULT_COLUMNS
 from tests.conftest import worked_wall
 

@@ -23,8 +23,8 @@ import shapely
 
 from screening.config import CASES
 from screening.io.writers import write_text_atomic
+from screening.outputs.workbook import BAND_COLOURS
 from screening.priority import BAND_LABELS, BANDS
-from screening.report import BAND_COLOURS
 
 LEAFLET_VERSION = "1.9.3"
 LEAFLET_CDN = f"https://cdn.jsdelivr.net/npm/leaflet@{LEAFLET_VERSION}/dist"

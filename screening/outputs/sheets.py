@@ -25,9 +25,10 @@ from matplotlib.patches import Polygon
 
 from screening import __version__
 from screening.config import CASES, Config
-from screening.engine import ENGINE_INPUTS, decode, run_cases
+from screening.core.engine import ENGINE_INPUTS, decode, run_cases
 from screening.io.writers import write_text_atomic
-from screening.report import CAUTION
+from screening.outputs import sheet_filename
+from screening.outputs.workbook import CAUTION
 from screening.schema import UNITS
 
 CASE_TITLES = {
@@ -589,8 +590,6 @@ _JOB: Any = None
 
 
 def _write_one(pos: int) -> tuple[str, str]:
-    from screening.job import sheet_filename
-
     sub, d, assumptions, config, provenance, with_figure, folder = _JOB
     n = len(sub)
     wall = sub.iloc[pos]

@@ -13,11 +13,35 @@ from collections.abc import Mapping
 import numpy as np
 from numpy.typing import NDArray
 
-from screening import earth_pressure, section, stability
 from screening.config import CASES, Config
-from screening.schema import ENGINE_INPUTS
+from screening.core import earth_pressure, section, stability
 
 FloatArray = NDArray[np.float64]
+
+ENGINE_INPUTS = (
+    "height_m",
+    "base_width_m",
+    "top_width_m",
+    "front_batter_m",
+    "retained_height_m",
+    "lean_deg",
+    "crack_height_m",
+    "wall_unit_weight_kn_m3",
+    "soil_unit_weight_kn_m3",
+    "soil_saturated_unit_weight_kn_m3",
+    "soil_friction_deg",
+    "wall_friction_deg",
+    "backfill_slope_deg",
+    "surcharge_kpa",
+    "base_friction_deg",
+    "joint_friction_deg",
+    "allowable_bearing_kpa",
+    "surveyed_water_height_m",
+)
+"""Columns the engine reads, canonical names, blanks filled (``crack_height_m`` NaN where no
+crack is recorded; ``surveyed_water_height_m`` is the water of the surveyed case, from
+``water_height_m`` or ``drainage``). :mod:`screening.schema` checks that each is a canonical
+numeric column."""
 
 
 BASE_CHECKS = ("middle_third", "bearing", "sliding", "overturning")
