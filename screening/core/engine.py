@@ -69,75 +69,24 @@ def section_checks(
     method.md §1–3: weight and wedge with lean about the toe, Coulomb thrust on
     the virtual back through the heel, water pressure and linear uplift.
     """
-    gw = config.gamma_w_kn_m3
-    height, base, top, front = (p["height_m"], p["base_width_m"], p["top_width_m"], p["front_batter_m"])
-    retained = p["retained_height_m"]
-    hw = water_height_m
-    back = section.back_batter(base, top, front)
+    base = p["base_width_m"]
+    w = _weights(p, water_height_m)
+    b = _back_loads(p, water_height_m, uplift=uplift, gamma_w=config.gamma_w_kn_m3)
+    sin_d, cos_d = np.sin(b["delta"]), np.cos(b["delta"])
 
-    area, x_w, z_w = section.wall_section(height, base, top, front)
-    weight = p["wall_unit_weight_kn_m3"] * area
-    wedge, x_s, z_s = section.back_wedge(
-        height,
-        base,
-        back,
-        retained,
-        hw,
-        p["soil_unit_weight_kn_m3"],
-        p["soil_saturated_unit_weight_kn_m3"],
-    )
-    arm_w = section.lever_after_lean(x_w, z_w, p["lean_deg"])
-    arm_s = np.where(wedge > 0, section.lever_after_lean(x_s, z_s, p["lean_deg"]), 0.0)
-
-    ka = earth_pressure.coulomb_ka(p["soil_friction_deg"], p["wall_friction_deg"], p["backfill_slope_deg"])
-    thrust, thrust_moment = earth_pressure.effective_thrust(
-        ka,
-        retained,
-        hw,
-        p["soil_unit_weight_kn_m3"],
-        p["soil_saturated_unit_weight_kn_m3"],
-        p["surcharge_kpa"],
-        gw,
-    )
-    delta = np.radians(p["wall_friction_deg"])
-    water, water_moment = earth_pressure.water_thrust(hw, gw)
-    if uplift:
-        up, up_arm = earth_pressure.base_uplift(hw, base, gw)
-    else:
-        up, up_arm = np.zeros_like(hw), np.zeros_like(hw)
-
-    horizontal = thrust * np.cos(delta) + water
-    vertical = weight + wedge + thrust * np.sin(delta) - up
-    restoring = weight * arm_w + wedge * arm_s + thrust * np.sin(delta) * base
-    overturning = thrust_moment * np.cos(delta) + water_moment + up * up_arm
+    horizontal = b["thrust"] * cos_d + b["water"]
+    vertical = w["weight"] + w["wedge"] + b["thrust"] * sin_d - b["uplift"]
+    restoring = w["weight"] * w["arm_w"] + w["wedge"] * w["arm_s"] + b["thrust"] * sin_d * base
+    overturning = b["thrust_moment"] * cos_d + b["water_moment"] + b["uplift"] * b["up_arm"]
     x_r, ecc = stability.resultant_position(restoring, overturning, vertical, base)
-    extra = {}
-    if details:
-        with np.errstate(invalid="ignore", divide="ignore"):
-            extra = {
-                "d_area_m2": area,
-                "d_wall_x_m": x_w,
-                "d_wall_z_m": z_w,
-                "d_wall_arm_m": arm_w,
-                "d_wedge_x_m": x_s,
-                "d_wedge_z_m": z_s,
-                "d_wedge_arm_m": arm_s,
-                "d_back_batter_m": back,
-                "d_thrust_kn_m": thrust,
-                "d_thrust_height_m": np.where(thrust > 0, thrust_moment / thrust, np.nan),
-                "d_thrust_moment_knm_m": thrust_moment * np.cos(delta),
-                "d_water_kn_m": water,
-                "d_water_moment_knm_m": water_moment,
-                "d_uplift_arm_m": up_arm,
-                "d_water_height_m": hw,
-            }
+    extra = _section_details(w, b, water_height_m) if details else {}
     return extra | {
-        "ka": ka,
-        "weight_kn_m": weight,
-        "wedge_kn_m": wedge,
+        "ka": b["ka"],
+        "weight_kn_m": w["weight"],
+        "wedge_kn_m": w["wedge"],
         "vertical_kn_m": vertical,
         "horizontal_kn_m": horizontal,
-        "uplift_kn_m": up,
+        "uplift_kn_m": b["uplift"],
         "restoring_moment_knm_m": restoring,
         "overturning_moment_knm_m": overturning,
         "resultant_from_toe_m": x_r,
@@ -146,6 +95,79 @@ def section_checks(
         "fos_overturning": stability.factor_of_safety(restoring, overturning),
         "middle_third_utilisation": stability.middle_third_utilisation(ecc, base),
     }
+
+
+def _weights(p: Mapping[str, FloatArray], hw: FloatArray) -> dict[str, FloatArray]:
+    """Wall and wedge weights with their lever arms about the toe after lean (method.md §1)."""
+    height, base, top, front = (p["height_m"], p["base_width_m"], p["top_width_m"], p["front_batter_m"])
+    back = section.back_batter(base, top, front)
+    area, x_w, z_w = section.wall_section(height, base, top, front)
+    wedge, x_s, z_s = section.back_wedge(
+        height,
+        base,
+        back,
+        p["retained_height_m"],
+        hw,
+        p["soil_unit_weight_kn_m3"],
+        p["soil_saturated_unit_weight_kn_m3"],
+    )
+    arm_w = section.lever_after_lean(x_w, z_w, p["lean_deg"])
+    arm_s = np.where(wedge > 0, section.lever_after_lean(x_s, z_s, p["lean_deg"]), 0.0)
+    weight = p["wall_unit_weight_kn_m3"] * area
+    return {
+        "area": area, "x_w": x_w, "z_w": z_w, "arm_w": arm_w, "weight": weight,
+        "wedge": wedge, "x_s": x_s, "z_s": z_s, "arm_s": arm_s, "back": back,
+    }  # fmt: skip
+
+
+def _back_loads(
+    p: Mapping[str, FloatArray], hw: FloatArray, *, uplift: bool, gamma_w: float
+) -> dict[str, FloatArray]:
+    """Earth and water pressure on the virtual back and uplift under the base (method.md §2)."""
+    ka = earth_pressure.coulomb_ka(p["soil_friction_deg"], p["wall_friction_deg"], p["backfill_slope_deg"])
+    thrust, thrust_moment = earth_pressure.effective_thrust(
+        ka,
+        p["retained_height_m"],
+        hw,
+        p["soil_unit_weight_kn_m3"],
+        p["soil_saturated_unit_weight_kn_m3"],
+        p["surcharge_kpa"],
+        gamma_w,
+    )
+    water, water_moment = earth_pressure.water_thrust(hw, gamma_w)
+    if uplift:
+        up, up_arm = earth_pressure.base_uplift(hw, p["base_width_m"], gamma_w)
+    else:
+        up, up_arm = np.zeros_like(hw), np.zeros_like(hw)
+    return {
+        "ka": ka, "thrust": thrust, "thrust_moment": thrust_moment,
+        "delta": np.radians(p["wall_friction_deg"]), "water": water, "water_moment": water_moment,
+        "uplift": up, "up_arm": up_arm,
+    }  # fmt: skip
+
+
+def _section_details(
+    w: Mapping[str, FloatArray], b: Mapping[str, FloatArray], hw: FloatArray
+) -> dict[str, FloatArray]:
+    """The intermediate values of one section that a calculation sheet sets out (keys ``d_…``)."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return {
+            "d_area_m2": w["area"],
+            "d_wall_x_m": w["x_w"],
+            "d_wall_z_m": w["z_w"],
+            "d_wall_arm_m": w["arm_w"],
+            "d_wedge_x_m": w["x_s"],
+            "d_wedge_z_m": w["z_s"],
+            "d_wedge_arm_m": w["arm_s"],
+            "d_back_batter_m": w["back"],
+            "d_thrust_kn_m": b["thrust"],
+            "d_thrust_height_m": np.where(b["thrust"] > 0, b["thrust_moment"] / b["thrust"], np.nan),
+            "d_thrust_moment_knm_m": b["thrust_moment"] * np.cos(b["delta"]),
+            "d_water_kn_m": b["water"],
+            "d_water_moment_knm_m": b["water_moment"],
+            "d_uplift_arm_m": b["up_arm"],
+            "d_water_height_m": hw,
+        }
 
 
 def crack_section(p: Mapping[str, FloatArray]) -> dict[str, FloatArray]:
@@ -189,6 +211,59 @@ def _governing(utils: list[FloatArray]) -> tuple[FloatArray, NDArray[np.int8]]:
         best = np.where(better, u, best)
         index[better] = k
     return best, index
+
+
+def _crack_checks(
+    p: Mapping[str, FloatArray], hw: FloatArray, config: Config, *, details: bool
+) -> dict[str, FloatArray]:
+    """The part above a known crack (method.md §5), for cracked walls only; NaN elsewhere.
+
+    No uplift in the crack, joint friction. Returns ``crack_…`` columns of length 3n.
+    """
+    shape = hw.shape
+    out: dict[str, FloatArray] = {}
+    rows = np.flatnonzero(np.isfinite(p["crack_height_m"]))
+    crack_p = crack_section({k: v[rows] for k, v in p.items()})
+    crack = section_checks(
+        crack_p,
+        np.maximum(hw[:, rows] - crack_p["crack_height_m"], 0.0),
+        uplift=False,
+        friction_deg=crack_p["joint_friction_deg"],
+        config=config,
+        details=details,
+    )
+    if details:
+        for key in (
+            "vertical_kn_m",
+            "horizontal_kn_m",
+            "restoring_moment_knm_m",
+            "overturning_moment_knm_m",
+            "resultant_from_toe_m",
+            "weight_kn_m",
+            "wedge_kn_m",
+            "ka",
+        ):
+            crack[f"d_{key}"] = crack[key]
+        crack["d_base_width_m"] = crack_p["base_width_m"]
+        crack["d_height_m"] = crack_p["height_m"]
+    wanted = {
+        "eccentricity_m": "crack_eccentricity_m",
+        "middle_third_utilisation": "crack_middle_third_utilisation",
+        "fos_overturning": "crack_fos_overturning",
+        "fos_sliding": "crack_fos_sliding",
+    } | ({k: f"crack_{k}" for k in crack if k.startswith("d_")} if details else {})
+    for key, name in wanted.items():
+        full = np.full(shape, np.nan)
+        full[:, rows] = np.broadcast_to(crack[key], (len(CASES), len(rows)))
+        out[name] = full.reshape(-1)
+    out["crack_overturning_utilisation"] = stability.fos_utilisation(
+        out["crack_fos_overturning"], config.fos_overturning_required
+    )
+    out["crack_sliding_utilisation"] = stability.fos_utilisation(
+        out["crack_fos_sliding"], config.fos_sliding_required
+    )
+
+    return out
 
 
 def run_cases(
@@ -238,47 +313,7 @@ def run_cases(
     out = {k: np.broadcast_to(v, shape).reshape(-1) for k, v in grid.items()}
     out["water_height_m"] = hw.reshape(-1)
 
-    # the part above a known crack (cracked walls only): no uplift in the crack, joint friction
-    rows = np.flatnonzero(np.isfinite(p["crack_height_m"]))
-    crack_p = crack_section({k: v[rows] for k, v in p.items()})
-    crack = section_checks(
-        crack_p,
-        np.maximum(hw[:, rows] - crack_p["crack_height_m"], 0.0),
-        uplift=False,
-        friction_deg=crack_p["joint_friction_deg"],
-        config=config,
-        details=details,
-    )
-    if details:
-        for key in (
-            "vertical_kn_m",
-            "horizontal_kn_m",
-            "restoring_moment_knm_m",
-            "overturning_moment_knm_m",
-            "resultant_from_toe_m",
-            "weight_kn_m",
-            "wedge_kn_m",
-            "ka",
-        ):
-            crack[f"d_{key}"] = crack[key]
-        crack["d_base_width_m"] = crack_p["base_width_m"]
-        crack["d_height_m"] = crack_p["height_m"]
-    wanted = {
-        "eccentricity_m": "crack_eccentricity_m",
-        "middle_third_utilisation": "crack_middle_third_utilisation",
-        "fos_overturning": "crack_fos_overturning",
-        "fos_sliding": "crack_fos_sliding",
-    } | ({k: f"crack_{k}" for k in crack if k.startswith("d_")} if details else {})
-    for key, name in wanted.items():
-        full = np.full(shape, np.nan)
-        full[:, rows] = np.broadcast_to(crack[key], (len(CASES), len(rows)))
-        out[name] = full.reshape(-1)
-    out["crack_overturning_utilisation"] = stability.fos_utilisation(
-        out["crack_fos_overturning"], config.fos_overturning_required
-    )
-    out["crack_sliding_utilisation"] = stability.fos_utilisation(
-        out["crack_fos_sliding"], config.fos_sliding_required
-    )
+    out.update(_crack_checks(p, hw, config, details=details))
 
     # governing check: the largest utilisation. A resultant outside the base means M_O > M_R:
     # the wall overturns, whatever the (infinite) edge pressure says; a floating case governs
