@@ -8,18 +8,22 @@ flagged walls) with the comparison against 2025.
 
 from __future__ import annotations
 
+import os
+from importlib import resources
 from pathlib import Path
 
 from screening.job import JobResult, MapOptions, record_history, screen_file, write_outputs
 from screening.outputs.sheets import flagged_walls
 from screening.progress import Progress
 
-SAMPLE = Path(__file__).resolve().parents[1] / "sample_inventory"
+def _sample(name: str) -> Path:
+    """A file of the bundled sample (``sample_inventory/``, shipped as ``screening.sample_inventory``)."""
+    return Path(os.fspath(resources.files("screening.sample_inventory") / name))
 
 
 def sample_paths(year: int = 2026) -> tuple[Path, Path]:
     """A survey of the sample register and its mapping file."""
-    return SAMPLE / f"register_{year}.xlsx", SAMPLE / "mapping.toml"
+    return _sample(f"register_{year}.xlsx"), _sample("mapping.toml")
 
 
 def run_demo(
