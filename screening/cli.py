@@ -13,6 +13,7 @@ from typing import Annotated
 
 import pandas as pd
 import typer
+import typer.core
 from rich.console import Console
 from rich.markup import escape
 from rich.table import Table
@@ -31,6 +32,23 @@ CAUTION = (
     "Screening aid only: results must be reviewed by a qualified engineer; "
     "local codes and the asset owner's standards govern."
 )
+
+# typer's rich help prints a type such as <bool> beside every flag, --help included; a flag takes
+# no value, so show none
+_display_type = typer.core.TyperOption.display_type_rich
+
+
+def _no_type_for_flags(self: typer.core.TyperOption, ctx: typer.Context) -> str | None:
+    return None if self.is_flag else _display_type(self, ctx)
+
+
+typer.core.TyperOption.display_type_rich = _no_type_for_flags  # type: ignore[method-assign,assignment]
+
+
+def plural(n: int, word: str, words: str | None = None) -> str:
+    """``1 warning``, ``2 warnings``: the count with the word in the right number."""
+    return f"{n} {word if n == 1 else (words or word + 's')}"
+
 
 app = typer.Typer(
     name="wallscreen",
@@ -110,9 +128,10 @@ def _print_summary(job: JobResult, top: int = 10) -> None:
     run = job.screening
     walls = job.walls
     console.print(
-        f"[bold]{job.info.input_file}[/]: {run.prepared.n_read} rows read, {len(walls)} walls screened "
-        f"in 3 cases, {run.n_rejected} rows rejected, "
-        f"{int((run.problems['severity'] == 'warning').sum())} warnings"
+        f"[bold]{job.info.input_file}[/]: {plural(run.prepared.n_read, 'row')} read, "
+        f"{plural(len(walls), 'wall')} screened "
+        f"in 3 cases, {plural(run.n_rejected, 'row')} rejected, "
+        f"{plural(int((run.problems['severity'] == 'warning').sum()), 'warning')}"
     )
     if len(walls):
         bands = walls["priority_band"].value_counts()
@@ -126,8 +145,13 @@ def _print_summary(job: JobResult, top: int = 10) -> None:
         )
         unlocated = int((~walls["located"]).sum())
         if unlocated:
-            console.print(f"{unlocated} wall(s) have no location: screened, listed, not mapped.")
-        table = Table(title=f"Inspect first (top {min(top, len(walls))})", title_justify="left")
+            has = "has" if unlocated == 1 else "have"
+            console.print(f"{plural(unlocated, 'wall')} {has} no location: screened, listed, not mapped.")
+        shown = min(top, len(walls))
+        table = Table(
+            title=f"Top of the ranking ({shown} of {plural(len(walls), 'wall')}, every band)",
+            title_justify="left",
+        )
         for col in ("rank", "wall", "band", "score", "utilisation", "reason"):
             table.add_column(col, overflow="fold")
         for w in walls.head(top).itertuples():
@@ -159,8 +183,8 @@ def _print_changes(job: JobResult) -> None:
         print_changes(job.changes)
 
 
-def print_changes(changes: pd.DataFrame, limit: int = 12) -> None:
-    """Counts by status and the first changed walls."""
+def print_changes(changes: pd.DataFrame, limit: int = 12, where: str = "changes.csv") -> None:
+    """Counts by status and the first changed walls, saying how many more are in ``where``."""
     from screening.history import describe_change
 
     counts = changes["status"].value_counts()
@@ -170,11 +194,13 @@ def print_changes(changes: pd.DataFrame, limit: int = 12) -> None:
             f"{k} {int(counts.get(k, 0))}" for k in ("changed", "added", "removed", "rejected", "unchanged")
         )
     )
-    moved = changes[changes["status"] != "unchanged"].head(limit)
-    for r in moved.itertuples(index=False):
+    moved = changes[changes["status"] != "unchanged"]
+    for r in moved.head(limit).itertuples(index=False):
         console.print(
             f"  {escape(str(r.wall_id)):<10} {r.status:<8} {escape(describe_change(pd.Series(r._asdict())))}"
         )
+    if len(moved) > limit:
+        console.print(f"  … {len(moved) - limit} more in {where}")
 
 
 def _screen_with_progress(
@@ -248,6 +274,7 @@ def run(
     options = MapOptions(map_assets_url, map_assets_dir, map_tiles)
     hist = None if no_history else (history or out / "history.gpkg")
     try:
+        options.check()
         job = _screen_with_progress(register, out, mapping, sheet, config, options, sheets, hist)
     except ScreeningError as exc:
         raise _fail(exc) from None
@@ -290,6 +317,29 @@ def check(
         raise typer.Exit(EXIT_SOME_REJECTED)
 
 
+def _match_ids(ids: list[str], known: set[str]) -> list[str]:
+    """Wall ids as the register spells them, matched case-insensitively as the map's search does.
+
+    An exact match wins; an id that matches several register ids differing only by case is an error.
+    """
+    folded: dict[str, list[str]] = {}
+    for k in sorted(known):
+        folded.setdefault(k.casefold(), []).append(k)
+    matched = []
+    for w in ids:
+        if w in known:
+            matched.append(w)
+            continue
+        candidates = folded.get(w.casefold(), [])
+        if len(candidates) > 1:
+            raise ScreeningError(
+                f"{w}: the register holds {', '.join(candidates)}, which differ only by case; "
+                "give the id exactly"
+            )
+        matched.append(candidates[0] if candidates else w)
+    return matched
+
+
 @app.command()
 def explain(
     register: RegisterArg,
@@ -314,6 +364,7 @@ def explain(
         if not ids:
             raise ScreeningError("name one or more wall ids, or give --flagged")
         known = set(job.walls["wall_id"].astype(str)) if len(job.walls) else set()
+        ids = _match_ids(ids, known)
         unknown = [w for w in ids if w not in known]
         if unknown:
             rejected = set(job.screening.problems["wall_id"].astype(str))
@@ -327,7 +378,7 @@ def explain(
         raise _fail(exc) from None
     for wid, rel in written.items():
         console.print(f"  {escape(wid):<14} {out / rel}")
-    console.print(f"{len(written)} calculation sheet(s) written. [dim]{CAUTION}[/]")
+    console.print(f"{plural(len(written), 'calculation sheet')} written. [dim]{CAUTION}[/]")
 
 
 @app.command()
@@ -388,12 +439,15 @@ def compare(
 @app.command()
 def template(
     target: Annotated[Path, typer.Argument(help="The workbook to write, e.g. register.xlsx")],
+    force: Annotated[bool, typer.Option("--force", help="Replace the file if it exists")] = False,
 ) -> None:
     """Write a blank register: canonical headers with notes, drop-down lists, and a guide sheet."""
     from screening.io.template import write_template
 
     if target.suffix.lower() != ".xlsx":
         raise _fail(ScreeningError(f"{target}: the template is an .xlsx workbook"))
+    if target.exists() and not force:
+        raise _fail(ScreeningError(f"{target} exists: not replaced (give --force to replace it)"))
     write_template(target)
     console.print(f"template written to {target}")
 
@@ -406,8 +460,10 @@ def map_command(
     map_tiles: TilesOpt = None,
 ) -> None:
     """Re-render map.html from an earlier run's outputs (e.g. with other map assets)."""
+    options = MapOptions(map_assets_url, map_assets_dir, map_tiles)
     try:
-        path = rerender_map(results_dir, MapOptions(map_assets_url, map_assets_dir, map_tiles))
+        options.check()
+        path = rerender_map(results_dir, options)
     except ScreeningError as exc:
         raise _fail(exc) from None
     console.print(f"map written to {path}")
@@ -426,7 +482,9 @@ def demo(
 
     from screening.demo import run_demo
 
+    options = MapOptions(map_assets_url, map_assets_dir, map_tiles)
     try:
+        options.check()
         with Bar(
             SpinnerColumn(),
             TextColumn("{task.description}"),
@@ -438,7 +496,7 @@ def demo(
             job = run_demo(
                 out,
                 progress=lambda name: bar.update(task, description=name),
-                map_options=MapOptions(map_assets_url, map_assets_dir, map_tiles),
+                map_options=options,
             )
     except ScreeningError as exc:
         raise _fail(exc) from None

@@ -8,7 +8,6 @@ flagged walls) with the comparison against 2025.
 
 from __future__ import annotations
 
-import os
 from importlib import resources
 from pathlib import Path
 
@@ -16,9 +15,10 @@ from screening.job import JobResult, MapOptions, record_history, screen_file, wr
 from screening.outputs.sheets import flagged_walls
 from screening.progress import Progress
 
+
 def _sample(name: str) -> Path:
     """A file of the bundled sample (``sample_inventory/``, shipped as ``screening.sample_inventory``)."""
-    return Path(os.fspath(resources.files("screening.sample_inventory") / name))
+    return Path(str(resources.files("screening.sample_inventory") / name))
 
 
 def sample_paths(year: int = 2026) -> tuple[Path, Path]:

@@ -25,6 +25,7 @@ import pandas as pd
 import shapely
 
 from screening.errors import ScreeningError
+from screening.priority import BAND_LABELS
 from screening.schema import ENGINE_INPUTS
 
 RUNS = "runs"
@@ -333,7 +334,7 @@ def compare(before: pd.DataFrame, after: pd.DataFrame, rejected: Sequence[str] =
         xn, yn = pd.to_numeric(x, errors="coerce"), pd.to_numeric(y, errors="coerce")
         if xn.notna().any() or yn.notna().any():
             differ = ~np.isclose(xn.astype(float), yn.astype(float), rtol=0, atol=1e-6, equal_nan=True)
-            fmt = lambda v: "blank" if pd.isna(v) else f"{float(v):.4g}"  # noqa: E731
+            fmt = lambda v, c=col: "blank" if pd.isna(v) else _input_text(c, float(v))  # noqa: E731
         else:
             differ = (x.fillna("").astype(str) != y.fillna("").astype(str)).to_numpy()
             fmt = lambda v: "blank" if pd.isna(v) else str(v)  # noqa: E731
@@ -357,6 +358,9 @@ def compare(before: pd.DataFrame, after: pd.DataFrame, rejected: Sequence[str] =
         "changed"
     )
     out.loc[out["status"] == "kept", "status"] = "unchanged"
+    for when in ("before", "after"):  # the words the user sees elsewhere, not the internal codes
+        band = out[f"priority_band_{when}"]
+        out[f"priority_band_{when}"] = band.map(lambda b: BAND_LABELS.get(str(b), b) if pd.notna(b) else b)
     out.loc[(out["status"] == "removed") & out.index.isin(list(rejected)), "status"] = "rejected"
     order = {"added": 0, "removed": 1, "rejected": 2, "changed": 3, "unchanged": 4}
     out = out.reset_index()
@@ -382,6 +386,24 @@ def describe_change(row: pd.Series) -> str:
     if ub is not None and ua is not None and not (pd.isna(ub) and pd.isna(ua)) and ub != ua:
         parts.append(f"utilisation {_u(ub)} → {_u(ua)}")
     return "; ".join(parts)
+
+
+_DECIMALS = {"condition_rating": 0}
+"""Decimals an input change is shown with: the precision a register records it to."""
+
+
+def _input_text(column: str, value: float) -> str:
+    """An input value as a register records it: lean to 0.1°, lengths to the millimetre."""
+    if column in _DECIMALS:
+        decimals = _DECIMALS[column]
+    elif column.endswith("_deg"):
+        decimals = 1
+    elif column.endswith("_m"):
+        decimals = 3
+    else:  # kPa, kN/m³
+        decimals = 1
+    text = f"{value:.{decimals}f}"
+    return text.rstrip("0").rstrip(".") if "." in text else text
 
 
 def _u(v: Any) -> str:

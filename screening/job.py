@@ -44,6 +44,27 @@ class MapOptions:
     assets_dir: Path | None = None
     tiles: str | None = None
 
+    def check(self) -> None:
+        """Refuse options that would fail only once the map is written, before any work starts."""
+        from screening.errors import ScreeningError
+
+        if self.assets_url is not None and self.assets_dir is not None:
+            raise ScreeningError("give --map-assets-url or --map-assets-dir, not both")
+        if self.assets_dir is not None:
+            folder = Path(self.assets_dir)
+            if not folder.is_dir():
+                raise ScreeningError(f"--map-assets-dir {folder}: no such folder")
+            missing = [n for n in ("leaflet.js", "leaflet.css") if not (folder / n).is_file()]
+            if missing:
+                raise ScreeningError(
+                    f"--map-assets-dir {folder}: no {' or '.join(missing)} there "
+                    "(the folder must hold Leaflet's dist files, e.g. from the npm package 'leaflet')"
+                )
+        if self.tiles is not None and not all(k in self.tiles for k in ("{z}", "{x}", "{y}")):
+            raise ScreeningError(
+                f"--map-tiles {self.tiles}: a tile URL template needs {{z}}, {{x}} and {{y}}"
+            )
+
 
 @dataclass
 class JobResult:
