@@ -5,6 +5,10 @@ colour class is computed here and kept in the feature properties, so the map
 opens fast for tens of thousands of walls (see shared/measured.md). Text from
 the register only ever reaches the page through ``textContent`` or escaped
 HTML, so nothing in a register can run in a reader's browser.
+
+The page's own code is plain JavaScript and CSS shipped beside this module
+(``webmap.js``, ``webmap.css``) and inlined into the page; the data reaches
+``webmap.js`` through ``window.wallscreenConfig``, set by a script just before it.
 """
 
 from __future__ import annotations
