@@ -39,7 +39,8 @@ def test_demo_writes_every_output_consistently(tmp_path: Path) -> None:
     walls = pd.read_csv(out / "walls.csv")
     # the walls on the map are the walls in the workbook (those with a location)
     html = (out / "map.html").read_text()
-    data = json.loads(re.search(r"var D = (\{.*?\});\n", html, re.S).group(1))
+    config = re.search(r"window\.wallscreenConfig = (\{.*?\});\n", html, re.S)
+    data = json.loads(config.group(1))["data"]
     on_map = set(data["id"])
     book = openpyxl.load_workbook(out / "report.xlsx")
     ranked = list(book["Ranked walls"].iter_rows(min_row=2, values_only=True))

@@ -4,6 +4,9 @@ from __future__ import annotations
 
 import json
 import re
+import shutil
+import subprocess
+from importlib import resources
 from pathlib import Path
 
 import numpy as np
@@ -12,7 +15,7 @@ import pytest
 from typer.testing import CliRunner
 
 from screening.cli import app
-from screening.outputs.webmap import OVERTURNS_COLOUR, margin_class, margin_colours
+from screening.outputs.webmap import OVERTURNS_COLOUR, margin_class, margin_colours, page_file
 from tests.browser import browser_page, leaflet_dir
 from tests.conftest import worked_wall
 
@@ -56,9 +59,10 @@ def evil_run(tmp_path_factory) -> Path:
 
 
 def _data(html: str) -> dict:
-    match = re.search(r"var D = (\{.*?\});\n", html, re.S)
+    # the walls, column-wise, from the config the page sets for webmap.js
+    match = re.search(r"window\.wallscreenConfig = (\{.*?\});\n", html, re.S)
     assert match
-    return json.loads(match.group(1))
+    return json.loads(match.group(1))["data"]
 
 
 def test_margin_classes_follow_utilisation() -> None:
@@ -99,6 +103,23 @@ def test_no_external_resources_with_inlined_assets(evil_run: Path, tmp_path: Pat
     )
     html = (evil_run / "map.html").read_text()
     assert 'src="https://intranet.example/leaflet/leaflet.js"' in html
+
+
+def test_shipped_script_is_plain_javascript() -> None:
+    # webmap.js is a real file, not a template with placeholders: node parses it as it stands
+    node = shutil.which("node")
+    if node is None:
+        pytest.skip("node is needed to check webmap.js")
+    with resources.as_file(resources.files("screening.outputs") / "webmap.js") as path:
+        out = subprocess.run([node, "--check", str(path)], capture_output=True, text=True)
+    assert out.returncode == 0, out.stderr
+
+
+def test_page_inlines_the_shipped_files_after_its_config(evil_run: Path) -> None:
+    html = (evil_run / "map.html").read_text()
+    script, style = page_file("webmap.js"), page_file("webmap.css")
+    assert "__DATA__" not in script and script in html and style in html
+    assert html.index("window.wallscreenConfig = ") < html.index(script)
 
 
 @pytest.mark.browser

@@ -5,6 +5,10 @@ colour class is computed here and kept in the feature properties, so the map
 opens fast for tens of thousands of walls (see shared/measured.md). Text from
 the register only ever reaches the page through ``textContent`` or escaped
 HTML, so nothing in a register can run in a reader's browser.
+
+The page's own code is plain JavaScript and CSS shipped beside this module
+(``webmap.js``, ``webmap.css``) and inlined into the page; the data reaches
+``webmap.js`` through ``window.wallscreenConfig``, set by a script just before it.
 """
 
 from __future__ import annotations
@@ -13,6 +17,7 @@ import html
 import json
 from collections.abc import Sequence
 from dataclasses import dataclass
+from importlib import resources
 from pathlib import Path
 from typing import Any
 
@@ -176,47 +181,79 @@ def build_map(
     """
     data = map_data(walls, geometry, results, sheets)
     n = len(data["id"])
-    if n:
-        xy = np.asarray(data["xy"]).reshape(-1, 2)
-        bounds = [[xy[:, 1].min(), xy[:, 0].min()], [xy[:, 1].max(), xy[:, 0].max()]]
-    else:
-        bounds = [[-60, -170], [75, 170]]
+    bounds = _bounds(data["xy"])
+    m = _base_map(bounds, canvas=n > CANVAS_FROM, tiles=tiles)
+    _leaflet_assets(m, assets_url=assets_url, assets_dir=assets_dir)
+    root: Any = m.get_root()
+    root.header.add_child(folium.Element(f"<style>\n{page_file('webmap.css')}</style>"))
+    unlocated = int((~walls["located"].astype(bool)).sum())
+    root.html.add_child(folium.Element(_info_box(title, subtitle, drawn=n, unlocated=unlocated)))
+    settings = _settings(bounds, extra_layers or {}, canvas=n > CANVAS_FROM)
+    config = {"map": m.get_name(), "data": data, "settings": settings}
+    return MapPage(m, _script_json(config))
+
+
+def page_file(name: str) -> str:
+    """The text of one of the page files shipped beside this module (``webmap.js``, ``webmap.css``)."""
+    return resources.files("screening.outputs").joinpath(name).read_text(encoding="utf-8")
+
+
+def _bounds(xy: list[float]) -> list[list[float]]:
+    """[[south, west], [north, east]] of the flat lon, lat vertex list; most of the world if empty."""
+    if not xy:
+        return [[-60, -170], [75, 170]]
+    lonlat = np.asarray(xy).reshape(-1, 2)
+    return [[lonlat[:, 1].min(), lonlat[:, 0].min()], [lonlat[:, 1].max(), lonlat[:, 0].max()]]
+
+
+def _base_map(bounds: list[list[float]], *, canvas: bool, tiles: str | None) -> folium.Map:
+    """The folium map centred on the walls, with its tile layer."""
     m = folium.Map(
         location=[(bounds[0][0] + bounds[1][0]) / 2, (bounds[0][1] + bounds[1][1]) / 2],
         zoom_start=14,
         tiles=None,
-        prefer_canvas=n > CANVAS_FROM,
+        prefer_canvas=canvas,
         control_scale=True,
     )
     folium.TileLayer(
         tiles or DEFAULT_TILES, attr=TILES_ATTRIBUTION if not tiles else "tiles", name="base", control=False
     ).add_to(m)
-    root: Any = m.get_root()
+    return m
+
+
+def _leaflet_assets(m: folium.Map, *, assets_url: str | None, assets_dir: str | Path | None) -> None:
+    """Point this map (only this one, see shared/measured.md) at Leaflet: inlined from a folder,
+    linked from a mirror, or linked from the public CDN."""
     if assets_dir is not None:
         folder = Path(assets_dir)
         js = (folder / "leaflet.js").read_text(encoding="utf-8")
         css = (folder / "leaflet.css").read_text(encoding="utf-8")
         m.default_js = []
         m.default_css = []
+        root: Any = m.get_root()
         root.header.add_child(folium.Element(f"<style>{css}</style><script>{js}</script>"), index=0)
     else:
         base = (assets_url or LEAFLET_CDN).rstrip("/")
         m.default_js = [("leaflet", f"{base}/leaflet.js")]
         m.default_css = [("leaflet_css", f"{base}/leaflet.css")]
 
-    unlocated = int((~walls["located"].astype(bool)).sum())
-    info = (
+
+def _info_box(title: str, subtitle: str, *, drawn: int, unlocated: int) -> str:
+    """The box with the run's title, the count of walls drawn and not drawn, and the caution."""
+    missing = (
+        f"; <b>{unlocated} without a location</b> (listed in the workbook, not drawn)" if unlocated else ""
+    )
+    return (
         f'<div id="ws-info"><div class="ws-title">{html.escape(title)}</div>'
         f'<div class="ws-sub">{html.escape(subtitle)}</div>'
-        f'<div class="ws-sub">{n} walls drawn'
-        + (
-            f"; <b>{unlocated} without a location</b> (listed in the workbook, not drawn)"
-            if unlocated
-            else ""
-        )
-        + f'</div><div class="ws-caution">{html.escape(CAUTION)}</div></div>'
+        f'<div class="ws-sub">{drawn} walls drawn{missing}'
+        f'</div><div class="ws-caution">{html.escape(CAUTION)}</div></div>'
     )
-    settings = {
+
+
+def _settings(bounds: list[list[float]], extra_layers: dict[str, Any], *, canvas: bool) -> dict[str, Any]:
+    """What the page's script needs besides the walls: colours, legend words, bounds, overlays."""
+    return {
         "cases": list(CASES),
         "colours": margin_colours(),
         "marginText": [c[2] for c in MARGIN_CLASSES] + [OVERTURNS_TEXT],
@@ -224,234 +261,32 @@ def build_map(
         "bandColours": [BAND_COLOURS[b] for b in BANDS],
         "bandText": [BAND_LABELS[b] for b in BANDS],
         "bounds": bounds,
-        "extra": extra_layers or {},
-        "canvas": n > CANVAS_FROM,
+        "extra": extra_layers,
+        "canvas": canvas,
     }
-    root.header.add_child(folium.Element(f"<style>{_CSS}</style>"))
-    root.html.add_child(folium.Element(info))
-    script = (
-        _JS.replace("__MAP__", m.get_name())
-        .replace("__DATA__", _script_json(data))
-        .replace("__SETTINGS__", _script_json(settings))
-    )
-    return MapPage(m, script)
 
 
 @dataclass(frozen=True)
 class MapPage:
-    """The folium map plus our script, which must run after the map exists.
+    """The folium map plus the data for our script, which must run after the map exists.
 
-    The script is appended to the rendered page rather than passed through folium's
+    ``config`` is the JavaScript literal of ``{map, data, settings}`` (see :func:`build_map`).
+    It and ``webmap.js`` are appended to the rendered page rather than passed through folium's
     templates, so no register text is ever interpreted as template syntax.
     """
 
     map: folium.Map
-    script: str
+    config: str
 
     def html(self) -> str:
         page = self.map.get_root().render()
         head, sep, tail = page.rpartition("</html>")
-        return f"{head}<script>{self.script}</script>\n{sep}{tail}"
+        return (
+            f"{head}<script>\nwindow.wallscreenConfig = {self.config};\n</script>\n"
+            f"<script>\n{page_file('webmap.js')}</script>\n{sep}{tail}"
+        )
 
 
 def write_map(page: MapPage, target: str | Path) -> Path:
     """Write the map's HTML atomically."""
     return write_text_atomic(target, page.html())
-
-
-_CSS = """
-#ws-info { position: absolute; bottom: 52px; left: 10px; z-index: 1000; max-width: 440px;
-  background: rgba(255,255,255,0.94); padding: 8px 12px; border-radius: 4px;
-  font: 13px/1.35 system-ui, sans-serif; box-shadow: 0 1px 4px rgba(0,0,0,0.3); }
-#ws-info .ws-title { font-weight: 600; font-size: 15px; }
-#ws-info .ws-caution { margin-top: 4px; font-size: 11.5px; color: #6b1d1d; }
-.ws-legend, .ws-search { background: rgba(255,255,255,0.94); padding: 6px 10px; border-radius: 4px;
-  font: 12px/1.4 system-ui, sans-serif; box-shadow: 0 1px 4px rgba(0,0,0,0.3); }
-.ws-legend .sw { display: inline-block; width: 22px; height: 6px; margin-right: 6px;
-  vertical-align: middle; border-radius: 2px; }
-.ws-legend div { white-space: nowrap; }
-.ws-search input { width: 160px; font-size: 13px; padding: 2px 4px; }
-.ws-search .msg { color: #6b1d1d; font-size: 11px; }
-.ws-popup table { border-collapse: collapse; font-size: 12px; margin-top: 4px; }
-.ws-popup td, .ws-popup th { border-bottom: 1px solid #ddd; padding: 2px 5px; text-align: right; }
-.ws-popup th:first-child, .ws-popup td:first-child { text-align: left; }
-.ws-popup .reason { margin: 4px 0; max-width: 400px; white-space: normal; }
-"""
-
-# Our own JavaScript: register text is only ever assigned with textContent.
-_JS = r"""
-(function () {
-  var map = __MAP__;
-  var D = __DATA__;
-  var S = __SETTINGS__;
-  var n = D.id.length;
-  var CASE_NAMES = {drained: "drained", blocked: "drains blocked", surveyed: "as surveyed"};
-  var CHECK_NAMES = {middle_third: "middle third", bearing: "bearing", sliding: "sliding",
-    overturning: "overturning", crack_middle_third: "crack: middle third", crack_sliding: "crack: sliding",
-    crack_overturning: "crack: overturning", vertical_load: "uplift exceeds weight"};
-  var views = [["Worst case", -1]];
-  D.cases.forEach(function (c, k) { views.push(["Case: " + CASE_NAMES[c], k]); });
-  views.push(["Priority band", "band"]);
-  var renderer = S.canvas ? L.canvas({padding: 0.5}) : undefined;
-
-  function el(tag, text, cls) {
-    var e = document.createElement(tag);
-    if (text !== undefined && text !== null) e.textContent = String(text);
-    if (cls) e.className = cls;
-    return e;
-  }
-  function fmt(v, d) {
-    if (v === null || v === undefined || Number.isNaN(v)) return "–";
-    if (!isFinite(v)) return v > 0 ? "∞" : "−∞";
-    return Number(v).toFixed(d);
-  }
-  function bandOf(i) { return D.bandNames[D.band[i]]; }
-  function colourOf(i, view) {
-    if (view === "band") return S.bandColours[S.bands.indexOf(bandOf(i))];
-    var k = view === -1 ? D.worst[i] : view;
-    return S.colours[D.cls[k][i]];
-  }
-  function style(i, view) {
-    var c = colourOf(i, view);
-    return {color: c, fillColor: c, weight: S.canvas ? 3 : 5, opacity: 0.95, fillOpacity: 0.9,
-            radius: S.canvas ? 3 : 6, renderer: renderer};
-  }
-  function latlngs(i) {
-    var pts = [];
-    for (var k = D.off[i]; k < D.off[i + 1]; k += 2) pts.push([D.xy[k + 1], D.xy[k]]);
-    return pts;
-  }
-  function tooltip(i) {
-    var d = el("div");
-    d.appendChild(el("b", D.id[i]));
-    if (D.name[i]) d.appendChild(el("span", " " + D.name[i]));
-    return d;
-  }
-  function popup(i) {
-    var d = el("div", null, "ws-popup");
-    var h = el("div"); h.appendChild(el("b", D.id[i])); h.appendChild(el("span", " " + D.name[i]));
-    d.appendChild(h);
-    var bandText = S.bandText[S.bands.indexOf(bandOf(i))];
-    d.appendChild(el("div", bandText + " (score " + fmt(D.score[i], 1) + ", rank " + D.rank[i] + ")"));
-    d.appendChild(el("div", D.reason[i], "reason"));
-    var t = el("table"); var head = el("tr");
-    ["case", "utilisation", "governing", "e [m] / B/6", "toe / allow. [kPa]", "FoS sl.", "FoS ot."]
-      .forEach(function (x) { head.appendChild(el("th", x)); });
-    t.appendChild(head);
-    D.cases.forEach(function (c, k) {
-      var r = el("tr");
-      r.setAttribute("data-case", c);
-      var gov = D.govNames[D.gov[k][i]];
-      [CASE_NAMES[c], fmt(D.u[k][i], 2), CHECK_NAMES[gov] || gov, fmt(D.e[k][i], 2) + " / " + fmt(D.b6[i], 2),
-       fmt(D.q[k][i], 0) + " / " + fmt(D.qa[i], 0), fmt(D.fs[k][i], 2), fmt(D.fo[k][i], 2)]
-        .forEach(function (x) { r.appendChild(el("td", x)); });
-      t.appendChild(r);
-    });
-    d.appendChild(t);
-    if (D.sheet[i]) {
-      var a = el("a", "Calculation sheet"); a.href = D.sheet[i]; a.target = "_blank"; a.rel = "noopener";
-      d.appendChild(a);
-    }
-    return d;
-  }
-  function shape(i, st) {
-    var pts = latlngs(i);
-    return pts.length === 1 ? L.circleMarker(pts[0], st) : L.polyline(pts, st);
-  }
-
-  var index = {};
-  for (var i = 0; i < n; i++) index[D.id[i].toLowerCase()] = i;
-  var built = {};
-  var groups = {};
-  var current = null;
-  function build(name, view) {
-    var byId = {};
-    var g = L.featureGroup();
-    // the data is in ranking order: draw from the last so that rank 1 ends on top
-    for (var i = n - 1; i >= 0; i--) {
-      var layer = shape(i, style(i, view));
-      layer.wsIndex = i;
-      layer.bindTooltip(tooltip.bind(null, i), {sticky: true});
-      layer.bindPopup(popup.bind(null, i), {maxWidth: 460, autoPanPaddingBottomRight: L.point(20, 180)});
-      byId[D.id[i].toLowerCase()] = layer;
-      g.addLayer(layer);
-    }
-    built[name] = {layer: g, byId: byId};
-    return g;
-  }
-  views.forEach(function (v) {
-    var grp = L.layerGroup();
-    grp.on("add", function () {
-      if (!built[v[0]]) grp.addLayer(build(v[0], v[1]));
-      current = v;
-      legend.update(v[1]);
-    });
-    groups[v[0]] = grp;
-  });
-  var overlays = {};
-  Object.keys(S.extra).forEach(function (name) {
-    var notes = S.extra[name];
-    var g = L.featureGroup();
-    Object.keys(notes).forEach(function (id) {
-      var i = index[id.toLowerCase()];
-      if (i === undefined) return;
-      var layer = shape(i, {color: "#FFD400", weight: 11, opacity: 0.55, radius: 11, fillOpacity: 0.3});
-      layer.bindTooltip(function () { var d = tooltip(i); d.appendChild(el("div", notes[id])); return d; },
-                        {sticky: true});
-      g.addLayer(layer);
-    });
-    overlays[name] = g;
-  });
-
-  var legend = L.control({position: "bottomright"});
-  legend.onAdd = function () { this._div = el("div", null, "ws-legend"); return this._div; };
-  legend.update = function (view) {
-    var d = this._div; if (!d) return;
-    d.textContent = "";
-    if (view === "band") {
-      d.appendChild(el("b", "Inspection priority"));
-      S.bands.forEach(function (b, k) { var r = el("div"); var s = el("span", null, "sw");
-        s.style.background = S.bandColours[k]; r.appendChild(s); r.appendChild(el("span", S.bandText[k]));
-        d.appendChild(r); });
-    } else {
-      var which = view === -1 ? "worst of the three cases" : CASE_NAMES[D.cases[view]];
-      d.appendChild(el("b", "Margin, " + which));
-      S.colours.forEach(function (c, k) { var r = el("div"); var s = el("span", null, "sw");
-        s.style.background = c; r.appendChild(s); r.appendChild(el("span", S.marginText[k]));
-        d.appendChild(r); });
-    }
-  };
-  legend.addTo(map);
-
-  var base = {};
-  views.forEach(function (v) { base[v[0]] = groups[v[0]]; });
-  L.control.layers(base, overlays, {collapsed: false, position: "topright"}).addTo(map);
-  groups[views[0][0]].addTo(map);
-
-  var search = L.control({position: "topright"});
-  search.onAdd = function () {
-    var d = el("div", null, "ws-search");
-    var input = el("input"); input.type = "search"; input.placeholder = "Find a wall by id";
-    input.id = "ws-search-input";
-    var msg = el("div", "", "msg");
-    d.appendChild(input); d.appendChild(msg);
-    L.DomEvent.disableClickPropagation(d);
-    input.addEventListener("keydown", function (ev) {
-      if (ev.key !== "Enter") return;
-      var key = input.value.trim().toLowerCase();
-      if (index[key] === undefined) { msg.textContent = "No wall with that id on the map"; return; }
-      msg.textContent = "";
-      var layer = built[current[0]].byId[key];
-      if (layer.getLatLng) map.setView(layer.getLatLng(), 18);
-      else map.fitBounds(layer.getBounds(), {maxZoom: 18});
-      layer.openPopup();
-    });
-    return d;
-  };
-  search.addTo(map);
-  if (n) {
-    map.fitBounds(S.bounds, {paddingTopLeft: [20, 20], paddingBottomRight: [20, 170]});
-  }
-  window.wallscreenMap = {map: map, built: built, count: n, data: D};
-})();
-"""

@@ -62,6 +62,55 @@ SUMMARY_COLUMNS: Sequence[tuple[str, str, str]] = (
     ("sheet", "Calculation sheet", "link"),
 )
 
+LOOK_FIRST_COLUMNS = (
+    "rank",
+    "wall_id",
+    "name",
+    "priority_band",
+    "priority_score",
+    "reason",
+    "utilisation",
+    "sheet",
+)
+"""The columns of SUMMARY_COLUMNS shown on 'Look first'."""
+
+# the columns of the other tables, in the same form as SUMMARY_COLUMNS
+CHANGE_COLUMNS: Sequence[tuple[str, str, str]] = (
+    ("wall_id", "Wall", "text"),
+    ("status", "Status", "word"),
+    ("inputs_changed", "Inputs changed (from → to)", "text"),
+    ("utilisation_before", "Utilisation before [-]", "num2"),
+    ("utilisation_after", "Utilisation after [-]", "num2"),
+    ("governing_check_before", "Governing before", "word"),
+    ("governing_check_after", "Governing after", "word"),
+    ("priority_band_before", "Band before", "word"),
+    ("priority_band_after", "Band after", "word"),
+    ("rank_before", "Rank before", "int"),
+    ("rank_after", "Rank after", "int"),
+)
+
+PROBLEM_COLUMNS: Sequence[tuple[str, str, str]] = (
+    ("row", "Row in your file", "int"),
+    ("wall_id", "Wall", "text"),
+    ("column", "Column", "text"),
+    ("value", "Value", "text"),
+    ("severity", "Severity", "word"),
+    ("message", "What was expected", "word"),
+)
+
+ASSUMPTION_COLUMNS: Sequence[tuple[str, str, str]] = (
+    ("column", "Column assumed", "text"),
+    ("value", "Value used", "text"),
+    ("source", "Source", "text"),
+    ("walls", "Walls", "int"),
+)
+
+PER_WALL_COLUMNS: Sequence[tuple[str, str, str]] = (
+    ("wall_id", "Wall", "text"),
+    ("row", "Row in your file", "int"),
+    ("assumed", "Columns assumed (value)", "text"),
+)
+
 RESULT_HEADERS = {
     "water_height_m": "Water height [m]",
     "weight_kn_m": "Wall weight W [kN/m]",
@@ -308,12 +357,35 @@ def write_workbook(
     full_results_limit: int = 1_000,
     look_first: int = 100,
 ) -> Path:
-    """Write ``report.xlsx`` atomically. See the module docstring for the sheets."""
+    """Write ``report.xlsx`` atomically. See the module docstring for the sheets.
+
+    In constant-memory mode each sheet is written top to bottom and the sheets in the order
+    they appear; the settings sheet comes after the tables so that it lists every table
+    cut at the row limit.
+    """
 
     def build(tmp: Path) -> None:
-        notes: list[str] = []  # sheets cut at the row limit, for the settings sheet
-        book = xlsxwriter.Workbook(
-            str(tmp),
+        out = _Book(tmp)
+        _ranked_sheet(out, walls)
+        _look_first_sheet(out, walls, look_first)
+        if changes is not None:
+            _changes_sheet(out, changes)
+        _results_sheet(out, walls, results, full_results_limit)
+        _rejected_sheet(out, problems)
+        _assumed_sheets(out, assumptions)
+        _settings_sheet(out, provenance, settings)
+        _method_sheet(out, method_text)
+        out.book.close()
+
+    return write_atomic(target, build)
+
+
+class _Book:
+    """The workbook being written, its formats, and the notes for the settings sheet."""
+
+    def __init__(self, path: Path):
+        self.book = xlsxwriter.Workbook(
+            str(path),
             {
                 "constant_memory": True,
                 "strings_to_formulas": False,
@@ -321,140 +393,113 @@ def write_workbook(
                 "nan_inf_to_errors": False,
             },
         )
-        f = _Formats(book)
+        self.f = _Formats(self.book)
+        self.notes: list[str] = []  # sheets cut at the row limit
 
-        sheet = book.add_worksheet("Ranked walls")
-        _table(notes, sheet, walls, SUMMARY_COLUMNS, f, widths={"reason": 70, "name": 30})
-        _colour_utilisation(sheet, walls, SUMMARY_COLUMNS, f)
+    def sheet(self, name: str) -> Worksheet:
+        return self.book.add_worksheet(name)
 
-        first = walls[walls["priority_band"] == "inspect_first"].head(look_first)
-        if len(first) < 10:
-            first = walls.head(min(look_first, max(10, len(first))))
-        sheet = book.add_worksheet("Look first")
+    def table(
+        self,
+        sheet: Worksheet,
+        frame: pd.DataFrame,
+        columns: Sequence[tuple[str, str, str]],
+        *,
+        widths: dict[str, int] | None = None,
+        start_row: int = 0,
+        coloured: bool = False,
+    ) -> int:
+        """:func:`_table`, then the utilisation and band colours if ``coloured``."""
+        last = _table(self.notes, sheet, frame, columns, self.f, widths=widths, start_row=start_row)
+        if coloured:
+            _colour_utilisation(sheet, frame, columns, self.f, start_row=start_row)
+        return last
+
+
+def _ranked_sheet(out: _Book, walls: pd.DataFrame) -> None:
+    sheet = out.sheet("Ranked walls")
+    out.table(sheet, walls, SUMMARY_COLUMNS, widths={"reason": 70, "name": 30}, coloured=True)
+
+
+def _look_first_sheet(out: _Book, walls: pd.DataFrame, look_first: int) -> None:
+    """The band 'Inspect first' (at most ``look_first`` walls), and at least the top ten."""
+    first = walls[walls["priority_band"] == "inspect_first"].head(look_first)
+    if len(first) < 10:
+        first = walls.head(min(look_first, max(10, len(first))))
+    sheet = out.sheet("Look first")
+    sheet.write_string(
+        0,
+        0,
+        f"The {len(first)} walls to look at first, of {len(walls)} screened "
+        "(the band 'Inspect first', and at least the top ten)",
+        out.f.title,
+    )
+    sheet.set_row(1, 32)
+    sheet.merge_range(1, 0, 1, 7, CAUTION, out.f.caution)
+    short = [c for c in SUMMARY_COLUMNS if c[0] in LOOK_FIRST_COLUMNS]
+    out.table(sheet, first, short, widths={"reason": 90, "name": 30}, start_row=3, coloured=True)
+
+
+def _changes_sheet(out: _Book, changes: pd.DataFrame) -> None:
+    sheet = out.sheet("Changes since last run")
+    out.table(sheet, changes, CHANGE_COLUMNS, widths={"inputs_changed": 70})
+
+
+def _results_sheet(out: _Book, walls: pd.DataFrame, results: pd.DataFrame, limit: int) -> None:
+    """Every case of every wall, or of the first ``limit`` walls of the ranking."""
+    sheet = out.sheet("Results by case")
+    shown = results
+    start = 0
+    if len(walls) > limit:
+        # a sheet of 3 x 10^5 rows helps nobody and takes minutes to write: keep the
+        # first walls of the ranking here; results.csv has every wall and case
+        keep = set(walls["wall_id"].head(limit))
+        shown = results[results["wall_id"].isin(keep)]
         sheet.write_string(
             0,
             0,
-            f"The {len(first)} walls to look at first, of {len(walls)} screened "
-            "(the band 'Inspect first', and at least the top ten)",
-            f.title,
+            f"The first {limit} walls of the ranking (of {len(walls)}); every wall "
+            "and case is in results.csv.",
+            out.f.bold,
         )
-        sheet.set_row(1, 32)
-        sheet.merge_range(1, 0, 1, 7, CAUTION, f.caution)
-        short = [
-            c
-            for c in SUMMARY_COLUMNS
-            if c[0]
-            in (
-                "rank",
-                "wall_id",
-                "name",
-                "priority_band",
-                "priority_score",
-                "reason",
-                "utilisation",
-                "sheet",
-            )
-        ]
-        _table(notes, sheet, first, short, f, widths={"reason": 90, "name": 30}, start_row=3)
-        _colour_utilisation(sheet, first, short, f, start_row=3)
+        start = 2
+    cols = [(c, RESULT_HEADERS.get(c, c.replace("_", " ")), _kind(c, results[c])) for c in results.columns]
+    out.table(sheet, shown, cols, start_row=start, coloured=True)
 
-        if changes is not None:
-            sheet = book.add_worksheet("Changes since last run")
-            change_cols = [
-                ("wall_id", "Wall", "text"),
-                ("status", "Status", "word"),
-                ("inputs_changed", "Inputs changed (from → to)", "text"),
-                ("utilisation_before", "Utilisation before [-]", "num2"),
-                ("utilisation_after", "Utilisation after [-]", "num2"),
-                ("governing_check_before", "Governing before", "word"),
-                ("governing_check_after", "Governing after", "word"),
-                ("priority_band_before", "Band before", "word"),
-                ("priority_band_after", "Band after", "word"),
-                ("rank_before", "Rank before", "int"),
-                ("rank_after", "Rank after", "int"),
-            ]
-            _table(notes, sheet, changes, change_cols, f, widths={"inputs_changed": 70})
 
-        sheet = book.add_worksheet("Results by case")
-        shown = results
-        start = 0
-        if len(walls) > full_results_limit:
-            # a sheet of 3 x 10^5 rows helps nobody and takes minutes to write: keep the
-            # first walls of the ranking here; results.csv has every wall and case
-            keep = set(walls["wall_id"].head(full_results_limit))
-            shown = results[results["wall_id"].isin(keep)]
-            sheet.write_string(
-                0,
-                0,
-                f"The first {full_results_limit} walls of the ranking (of {len(walls)}); every wall "
-                "and case is in results.csv.",
-                f.bold,
-            )
-            start = 2
-        cols = [
-            (c, RESULT_HEADERS.get(c, c.replace("_", " ")), _kind(c, results[c])) for c in results.columns
-        ]
-        _table(notes, sheet, shown, cols, f, start_row=start)
-        _colour_utilisation(sheet, shown, cols, f, start_row=start)
+def _rejected_sheet(out: _Book, problems: pd.DataFrame) -> None:
+    sheet = out.sheet("Rejected rows")
+    sheet.write_string(0, 0, "Errors reject the row (it was not screened); warnings keep it.", out.f.bold)
+    out.table(sheet, problems, PROBLEM_COLUMNS, widths={"message": 80}, start_row=2)
 
-        sheet = book.add_worksheet("Rejected rows")
-        sheet.write_string(0, 0, "Errors reject the row (it was not screened); warnings keep it.", f.bold)
-        prob_cols = [
-            ("row", "Row in your file", "int"),
-            ("wall_id", "Wall", "text"),
-            ("column", "Column", "text"),
-            ("value", "Value", "text"),
-            ("severity", "Severity", "word"),
-            ("message", "What was expected", "word"),
-        ]
-        _table(notes, sheet, problems, prob_cols, f, widths={"message": 80}, start_row=2)
 
-        # the same default is usually used for many walls: one row per default here, and one
-        # row per wall on the next sheet (every single one is in assumptions.csv)
-        sheet = book.add_worksheet("Assumed defaults")
-        summary = _assumption_summary(assumptions)
-        ass_cols = [
-            ("column", "Column assumed", "text"),
-            ("value", "Value used", "text"),
-            ("source", "Source", "text"),
-            ("walls", "Walls", "int"),
-        ]
-        _table(notes, sheet, summary, ass_cols, f, widths={"source": 90, "value": 14})
-        sheet = book.add_worksheet("Assumed per wall")
-        per_wall = _assumptions_per_wall(assumptions)
-        _table(
-            notes,
-            sheet,
-            per_wall,
-            [
-                ("wall_id", "Wall", "text"),
-                ("row", "Row in your file", "int"),
-                ("assumed", "Columns assumed (value)", "text"),
-            ],
-            f,
-            widths={"assumed": 140},
-        )
+def _assumed_sheets(out: _Book, assumptions: pd.DataFrame) -> None:
+    """The same default is usually used for many walls: one row per default on 'Assumed
+    defaults', one row per wall on 'Assumed per wall' (every single one is in assumptions.csv)."""
+    sheet = out.sheet("Assumed defaults")
+    out.table(sheet, _assumption_summary(assumptions), ASSUMPTION_COLUMNS, widths={"source": 90, "value": 14})
+    sheet = out.sheet("Assumed per wall")
+    out.table(sheet, _assumptions_per_wall(assumptions), PER_WALL_COLUMNS, widths={"assumed": 140})
 
-        sheet = book.add_worksheet("Settings")
-        sheet.set_column(0, 0, 34)
-        sheet.set_column(1, 1, 100)
-        r = _key_value(sheet, [*provenance, *(("note", t) for t in notes)], f)
-        flat = _flatten(settings)
-        _key_value(sheet, flat, f, start=r + 1)
 
-        sheet = book.add_worksheet("Method and cautions")
-        sheet.set_column(0, 0, 28)
-        sheet.set_column(1, 1, 110)
-        sheet.write_string(0, 0, "Caution", f.title)
-        sheet.write_string(1, 0, CAUTION, f.caution)
-        r = 3
-        for head, text in method_text:
-            sheet.write_string(r, 0, head, f.bold)
-            sheet.write_string(r, 1, text, f.wrap)
-            r += 1
-        book.close()
+def _settings_sheet(out: _Book, provenance: list[tuple[str, Any]], settings: dict[str, Any]) -> None:
+    """Where the run came from, the notes of the sheets cut short, then every setting."""
+    sheet = out.sheet("Settings")
+    sheet.set_column(0, 0, 34)
+    sheet.set_column(1, 1, 100)
+    r = _key_value(sheet, [*provenance, *(("note", t) for t in out.notes)], out.f)
+    _key_value(sheet, _flatten(settings), out.f, start=r + 1)
 
-    return write_atomic(target, build)
+
+def _method_sheet(out: _Book, method_text: list[tuple[str, str]]) -> None:
+    sheet = out.sheet("Method and cautions")
+    sheet.set_column(0, 0, 28)
+    sheet.set_column(1, 1, 110)
+    sheet.write_string(0, 0, "Caution", out.f.title)
+    sheet.write_string(1, 0, CAUTION, out.f.caution)
+    for r, (head, text) in enumerate(method_text, start=3):
+        sheet.write_string(r, 0, head, out.f.bold)
+        sheet.write_string(r, 1, text, out.f.wrap)
 
 
 def _assumption_summary(assumptions: pd.DataFrame) -> pd.DataFrame:

@@ -1,0 +1,179 @@
+// The risk map's own drawing code, inlined into map.html by screening/outputs/webmap.py.
+// The script before this one sets window.wallscreenConfig = {map, data, settings}: the name
+// of folium's map variable, the walls column-wise (map_data) and the legend settings.
+// Register text is only ever assigned with textContent, never parsed as HTML.
+(function () {
+  var C = window.wallscreenConfig;
+  var map = window[C.map];
+  var D = C.data;
+  var S = C.settings;
+  var n = D.id.length;
+  var CASE_NAMES = {drained: "drained", blocked: "drains blocked", surveyed: "as surveyed"};
+  var CHECK_NAMES = {middle_third: "middle third", bearing: "bearing", sliding: "sliding",
+    overturning: "overturning", crack_middle_third: "crack: middle third", crack_sliding: "crack: sliding",
+    crack_overturning: "crack: overturning", vertical_load: "uplift exceeds weight"};
+  var views = [["Worst case", -1]];
+  D.cases.forEach(function (c, k) { views.push(["Case: " + CASE_NAMES[c], k]); });
+  views.push(["Priority band", "band"]);
+  var renderer = S.canvas ? L.canvas({padding: 0.5}) : undefined;
+
+  function el(tag, text, cls) {
+    var e = document.createElement(tag);
+    if (text !== undefined && text !== null) e.textContent = String(text);
+    if (cls) e.className = cls;
+    return e;
+  }
+  function fmt(v, d) {
+    if (v === null || v === undefined || Number.isNaN(v)) return "–";
+    if (!isFinite(v)) return v > 0 ? "∞" : "−∞";
+    return Number(v).toFixed(d);
+  }
+  function bandOf(i) { return D.bandNames[D.band[i]]; }
+  function colourOf(i, view) {
+    if (view === "band") return S.bandColours[S.bands.indexOf(bandOf(i))];
+    var k = view === -1 ? D.worst[i] : view;
+    return S.colours[D.cls[k][i]];
+  }
+  function style(i, view) {
+    var c = colourOf(i, view);
+    return {color: c, fillColor: c, weight: S.canvas ? 3 : 5, opacity: 0.95, fillOpacity: 0.9,
+            radius: S.canvas ? 3 : 6, renderer: renderer};
+  }
+  function latlngs(i) {
+    var pts = [];
+    for (var k = D.off[i]; k < D.off[i + 1]; k += 2) pts.push([D.xy[k + 1], D.xy[k]]);
+    return pts;
+  }
+  function tooltip(i) {
+    var d = el("div");
+    d.appendChild(el("b", D.id[i]));
+    if (D.name[i]) d.appendChild(el("span", " " + D.name[i]));
+    return d;
+  }
+  function popup(i) {
+    var d = el("div", null, "ws-popup");
+    var h = el("div"); h.appendChild(el("b", D.id[i])); h.appendChild(el("span", " " + D.name[i]));
+    d.appendChild(h);
+    var bandText = S.bandText[S.bands.indexOf(bandOf(i))];
+    d.appendChild(el("div", bandText + " (score " + fmt(D.score[i], 1) + ", rank " + D.rank[i] + ")"));
+    d.appendChild(el("div", D.reason[i], "reason"));
+    var t = el("table"); var head = el("tr");
+    ["case", "utilisation", "governing", "e [m] / B/6", "toe / allow. [kPa]", "FoS sl.", "FoS ot."]
+      .forEach(function (x) { head.appendChild(el("th", x)); });
+    t.appendChild(head);
+    D.cases.forEach(function (c, k) {
+      var r = el("tr");
+      r.setAttribute("data-case", c);
+      var gov = D.govNames[D.gov[k][i]];
+      [CASE_NAMES[c], fmt(D.u[k][i], 2), CHECK_NAMES[gov] || gov, fmt(D.e[k][i], 2) + " / " + fmt(D.b6[i], 2),
+       fmt(D.q[k][i], 0) + " / " + fmt(D.qa[i], 0), fmt(D.fs[k][i], 2), fmt(D.fo[k][i], 2)]
+        .forEach(function (x) { r.appendChild(el("td", x)); });
+      t.appendChild(r);
+    });
+    d.appendChild(t);
+    if (D.sheet[i]) {
+      var a = el("a", "Calculation sheet"); a.href = D.sheet[i]; a.target = "_blank"; a.rel = "noopener";
+      d.appendChild(a);
+    }
+    return d;
+  }
+  function shape(i, st) {
+    var pts = latlngs(i);
+    return pts.length === 1 ? L.circleMarker(pts[0], st) : L.polyline(pts, st);
+  }
+
+  var index = {};
+  for (var i = 0; i < n; i++) index[D.id[i].toLowerCase()] = i;
+  var built = {};
+  var groups = {};
+  var current = null;
+  function build(name, view) {
+    var byId = {};
+    var g = L.featureGroup();
+    // the data is in ranking order: draw from the last so that rank 1 ends on top
+    for (var i = n - 1; i >= 0; i--) {
+      var layer = shape(i, style(i, view));
+      layer.wsIndex = i;
+      layer.bindTooltip(tooltip.bind(null, i), {sticky: true});
+      layer.bindPopup(popup.bind(null, i), {maxWidth: 460, autoPanPaddingBottomRight: L.point(20, 180)});
+      byId[D.id[i].toLowerCase()] = layer;
+      g.addLayer(layer);
+    }
+    built[name] = {layer: g, byId: byId};
+    return g;
+  }
+  views.forEach(function (v) {
+    var grp = L.layerGroup();
+    grp.on("add", function () {
+      if (!built[v[0]]) grp.addLayer(build(v[0], v[1]));
+      current = v;
+      legend.update(v[1]);
+    });
+    groups[v[0]] = grp;
+  });
+  var overlays = {};
+  Object.keys(S.extra).forEach(function (name) {
+    var notes = S.extra[name];
+    var g = L.featureGroup();
+    Object.keys(notes).forEach(function (id) {
+      var i = index[id.toLowerCase()];
+      if (i === undefined) return;
+      var layer = shape(i, {color: "#FFD400", weight: 11, opacity: 0.55, radius: 11, fillOpacity: 0.3});
+      layer.bindTooltip(function () { var d = tooltip(i); d.appendChild(el("div", notes[id])); return d; },
+                        {sticky: true});
+      g.addLayer(layer);
+    });
+    overlays[name] = g;
+  });
+
+  var legend = L.control({position: "bottomright"});
+  legend.onAdd = function () { this._div = el("div", null, "ws-legend"); return this._div; };
+  legend.update = function (view) {
+    var d = this._div; if (!d) return;
+    d.textContent = "";
+    if (view === "band") {
+      d.appendChild(el("b", "Inspection priority"));
+      S.bands.forEach(function (b, k) { var r = el("div"); var s = el("span", null, "sw");
+        s.style.background = S.bandColours[k]; r.appendChild(s); r.appendChild(el("span", S.bandText[k]));
+        d.appendChild(r); });
+    } else {
+      var which = view === -1 ? "worst of the three cases" : CASE_NAMES[D.cases[view]];
+      d.appendChild(el("b", "Margin, " + which));
+      S.colours.forEach(function (c, k) { var r = el("div"); var s = el("span", null, "sw");
+        s.style.background = c; r.appendChild(s); r.appendChild(el("span", S.marginText[k]));
+        d.appendChild(r); });
+    }
+  };
+  legend.addTo(map);
+
+  var base = {};
+  views.forEach(function (v) { base[v[0]] = groups[v[0]]; });
+  L.control.layers(base, overlays, {collapsed: false, position: "topright"}).addTo(map);
+  groups[views[0][0]].addTo(map);
+
+  var search = L.control({position: "topright"});
+  search.onAdd = function () {
+    var d = el("div", null, "ws-search");
+    var input = el("input"); input.type = "search"; input.placeholder = "Find a wall by id";
+    input.id = "ws-search-input";
+    var msg = el("div", "", "msg");
+    d.appendChild(input); d.appendChild(msg);
+    L.DomEvent.disableClickPropagation(d);
+    input.addEventListener("keydown", function (ev) {
+      if (ev.key !== "Enter") return;
+      var key = input.value.trim().toLowerCase();
+      if (index[key] === undefined) { msg.textContent = "No wall with that id on the map"; return; }
+      msg.textContent = "";
+      var layer = built[current[0]].byId[key];
+      if (layer.getLatLng) map.setView(layer.getLatLng(), 18);
+      else map.fitBounds(layer.getBounds(), {maxZoom: 18});
+      layer.openPopup();
+    });
+    return d;
+  };
+  search.addTo(map);
+  if (n) {
+    map.fitBounds(S.bounds, {paddingTopLeft: [20, 20], paddingBottomRight: [20, 170]});
+  }
+  window.wallscreenMap = {map: map, built: built, count: n, data: D};
+})();
