@@ -110,6 +110,7 @@ def test_crack_and_lean_are_shown(sheet_run: Path) -> None:
     assert "blocked.crack_fos_sliding" in values
     assert "x cos ω − z sin ω" in page
     assert "qualified engineer" in page
+    assert '<p class="name"></p>' in page  # no name recorded: nothing shown (not "nan")
 
 
 def test_overturning_wall_is_explained_as_such(sheet_run: Path) -> None:

@@ -452,7 +452,7 @@ def sheet_context(
     """
     return {
         "wall_id": str(wall["wall_id"]),
-        "name": str(wall.get("name") or ""),
+        "name": "" if pd.isna(wall.get("name")) else str(wall["name"]),
         "caution": CAUTION,
         "inputs": _input_rows(wall, assumptions),
         "section": _section_steps(wall, d, j["drained"]),
