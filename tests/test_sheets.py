@@ -110,6 +110,7 @@ def test_crack_and_lean_are_shown(sheet_run: Path) -> None:
     assert "blocked.crack_fos_sliding" in values
     assert "x cos ω − z sin ω" in page
     assert "qualified engineer" in page
+    assert '<p class="name"></p>' in page  # no name recorded: nothing shown (not "nan")
 
 
 def test_overturning_wall_is_explained_as_such(sheet_run: Path) -> None:
@@ -136,3 +137,50 @@ def test_explain_command_names_unknown_and_rejected_walls(tmp_path: Path) -> Non
     result = runner.invoke(app, ["explain", str(tmp_path / "r.csv"), "BAD", "ZZZ", "-o", str(tmp_path / "o")])
     assert result.exit_code == 2
     assert "BAD (rejected" in result.output and "ZZZ (not in the register)" in result.output
+
+
+def test_register_text_appears_only_escaped(tmp_path: Path) -> None:
+    wid, name = "<script>alert(1)</script>", "<script>alert(2)</script> & <b>co</b>"
+    pd.DataFrame([worked_wall(wid, 2.0, name=name, drainage="partial")]).to_csv(
+        tmp_path / "r.csv", index=False
+    )
+    result = runner.invoke(app, ["explain", str(tmp_path / "r.csv"), wid, "-o", str(tmp_path / "o")])
+    assert result.exit_code == 0, result.output
+    page = (tmp_path / "o" / "sheets" / sheet_filename(wid)).read_text()
+    assert "<script" not in page and "<b>" not in page
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in page  # title and heading
+    assert "&lt;script&gt;alert(2)&lt;/script&gt; &amp; &lt;b&gt;co&lt;/b&gt;" in page
+    assert "qualified engineer" in page
+
+
+def test_the_page_content_is_plain_data(tmp_path: Path) -> None:
+    """The context handed to the template holds no markup: every tag is in sheet.html.j2."""
+    from screening.config import CASES, Config
+    from screening.core.engine import ENGINE_INPUTS, decode, run_cases
+    from screening.job import screen_file
+    from screening.outputs.sheets import sheet_context
+
+    pd.DataFrame([worked_wall("W1", 1.8, crack_height_m=1.2, drainage="partial")]).to_csv(
+        tmp_path / "r.csv", index=False
+    )
+    prepared = screen_file(tmp_path / "r.csv").screening.prepared
+    wall = prepared.walls.iloc[0]
+    d = decode(
+        run_cases({k: prepared.walls[k].to_numpy(float) for k in ENGINE_INPUTS}, Config(), details=True)
+    )
+    for k in ("_p_base", "_w_base", "_g", "_gs", "_q"):
+        d[k] = np.zeros(len(CASES))  # the figure's extras (write_sheets fills them)
+    j = {case: c for c, case in enumerate(CASES)}
+    context = sheet_context(wall, d, j, prepared.assumptions, Config(), [("run", "r")], with_figure=True)
+
+    def strings(node: object) -> list[str]:
+        if isinstance(node, dict):
+            return [s for v in node.values() for s in strings(v)]
+        if isinstance(node, list | tuple):
+            return [s for v in node for s in strings(v)]
+        return [node] if isinstance(node, str) else []
+
+    found = strings(context)
+    assert len(found) > 150 and context["figure"].startswith("data:image/png;base64,")
+    assert context["cases"][1]["crack"] is not None  # the crack plane is checked when blocked
+    assert not [s for s in found if "<" in s or ">" in s]
