@@ -14,7 +14,7 @@ from scipy import integrate
 
 from benchmarks.scalar import screen_wall
 from screening import Config, schema, screen
-from screening.core.engine import ENGINE_INPUTS, decode, run_cases
+from screening.core.engine import DERIVED_INPUTS, ENGINE_INPUTS, decode, run_cases
 from screening.core.stability import base_pressure
 from screening.pipeline import RESULT_COLUMNS
 from screening.prepare import prepare
@@ -249,5 +249,6 @@ def test_run_cases_is_vectorised_over_arrays() -> None:
 
 def test_engine_inputs_are_canonical_numeric_columns():
     # the engine declares its inputs; each must be a canonical numeric column of the register
-    # (inventory.md), apart from the surveyed water height that preparation derives
-    assert set(ENGINE_INPUTS) - {"surveyed_water_height_m"} <= set(schema.NUMERIC)
+    # (inventory.md), apart from the two that preparation derives (surveyed water, joint check)
+    assert set(DERIVED_INPUTS) == {"surveyed_water_height_m", "joint_check"}
+    assert set(ENGINE_INPUTS) - set(DERIVED_INPUTS) <= set(schema.NUMERIC)
