@@ -98,7 +98,7 @@ def annex_d_resistance(
     with np.errstate(invalid="ignore", divide="ignore"):
         bracket = np.clip(1.0 - h / (v + positive * c / np.tan(phi)), 0.0, None)
         i_q = bracket**2
-        i_g = bracket**3
+        i_g = i_q * bracket
         i_c = np.clip(i_q - (1.0 - i_q) / (n_c * np.tan(phi)), 0.0, None)
         q_ult = c * n_c * i_c + q_over * n_q * i_q + 0.5 * g * positive * n_g * i_g
     resistance = np.where(width > 0, q_ult * positive, np.where(np.isnan(width), np.nan, 0.0))
