@@ -323,7 +323,10 @@ def load_config(path: str | Path | None) -> Config:
             )
         current = getattr(base, key)
         if key == "criteria":
-            changes["criteria"], source = _criteria(value)
+            try:
+                changes["criteria"], source = _criteria(value)
+            except ConfigError as exc:
+                raise ConfigError(f"{path}: {exc}") from exc
             changes.setdefault("criteria_source", source)
         elif key == "joint_check_materials":
             if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
