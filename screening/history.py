@@ -342,7 +342,9 @@ def compare(before: pd.DataFrame, after: pd.DataFrame, rejected: Sequence[str] =
         if col == "survey_date":
             continue
         xn, yn = pd.to_numeric(x, errors="coerce"), pd.to_numeric(y, errors="coerce")
-        if xn.notna().any() or yn.notna().any():
+        # a number column blank throughout still compares as numbers (SQLite gives it back as text)
+        numeric = pd.api.types.is_numeric_dtype(x) or pd.api.types.is_numeric_dtype(y)
+        if numeric or xn.notna().any() or yn.notna().any():
             differ = ~np.isclose(xn.astype(float), yn.astype(float), rtol=0, atol=1e-6, equal_nan=True)
             fmt = lambda v: "blank" if pd.isna(v) else f"{float(v):.4g}"  # noqa: E731
         else:

@@ -326,7 +326,7 @@ def _bearing(
     util[:, rows] = bearing.bearing_utilisation(v, d["resistance_kn_m"], config.fos_bearing_required)
     out["bearing_utilisation"] = util
     if details:
-        out |= {f"d_bearing_{k}": _scatter(shape, rows, v) for k, v in d.items() if k != "resistance_kn_m"}
+        out |= {f"d_bearing_{k}": _scatter(shape, rows, x) for k, x in d.items() if k != "resistance_kn_m"}
     return out
 
 
@@ -459,6 +459,7 @@ def screen_grid(
     (m, 1), :func:`case_criteria`). Returns arrays that broadcast to ``hw.shape``.
     """
     shape = hw.shape
+    passive = _passive(p, config)
     grid: dict[str, NDArray] = section_checks(
         p,
         hw,
@@ -466,9 +467,9 @@ def screen_grid(
         friction_deg=p["base_friction_deg"],
         config=config,
         details=details,
-        passive_kn_m=_passive(p, config),
+        passive_kn_m=passive,
     )
-    grid["passive_resistance_kn_m"] = _passive(p, config)
+    grid["passive_resistance_kn_m"] = passive
     toe, heel, state = stability.base_pressure(
         grid["vertical_kn_m"], grid["resultant_from_toe_m"], p["base_width_m"]
     )
@@ -489,7 +490,7 @@ def screen_grid(
     # governing check: the largest utilisation. A resultant outside the base means M_O > M_R:
     # the wall overturns, whatever the (infinite) edge pressure says; a floating case governs
     # by definition. With criteria per case, `resultant` takes the place of `middle_third`.
-    competing = dict.fromkeys(CHECKS, None) | {c: grid[f"{c}_utilisation"] for c in CHECKS}
+    competing = {c: grid[f"{c}_utilisation"] for c in CHECKS}
     if config.criteria_set:
         competing["middle_third"] = np.full(shape, np.nan)
     utilisation, index = _governing([np.broadcast_to(u, shape) for u in competing.values()])
