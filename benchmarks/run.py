@@ -25,6 +25,7 @@ import pandas as pd
 
 from benchmarks.scalar import screen_wall
 from screening.config import Config
+from screening.core import critical
 from screening.core.engine import ENGINE_INPUTS, run_cases
 from screening.prepare import prepare
 
@@ -103,6 +104,37 @@ def engine_rows(sizes: list[int], scalar_n: int) -> list[dict[str, object]]:
                 "engine speed-up": t_scalar / t_engine,
                 "numpy floor s": t_floor,
                 "engine / floor": t_engine / t_floor,
+            }
+        )
+    return rows
+
+
+def joint_rows(n: int) -> list[dict[str, object]]:
+    """The cost of every bed joint (method.md §8) and of the §9 search, on n masonry walls."""
+    register = synthetic_register(n)
+    register["material"] = np.random.default_rng(1).choice(["stone_masonry", "brick_masonry", "drystone"], n)
+    rows: list[dict[str, object]] = []
+    size = Config().chunk_size
+    for planes in (0, 10):
+        config = Config(joint_planes=planes)
+        inputs = prepare(register, config).inputs
+
+        def engine(inputs: dict = inputs, config: Config = config) -> None:
+            for start in range(0, n, size):
+                run_cases({k: v[start : start + size] for k, v in inputs.items()}, config)
+
+        def search(inputs: dict = inputs, config: Config = config) -> None:
+            for start in range(0, n, size):
+                chunk = {k: v[start : start + size] for k, v in inputs.items()}
+                critical.critical_water_height(chunk, config)
+                critical.critical_lean(chunk, config)
+
+        rows.append(
+            {
+                "masonry walls": n,
+                "joint_planes": planes,
+                "engine s (3 cases)": _best(engine),
+                "critical water + lean s": _best(search, repeat=1),
             }
         )
     return rows
@@ -200,6 +232,7 @@ TARGETS = [
     ("10^6 walls x 3 cases through the engine", "< 3 s"),
     ("engine against the per-wall implementation", ">= 100x"),
     ("engine against the numpy floor", "within 10x"),
+    ("10^5 masonry walls, 10 bed-joint planes, 3 cases", "< 2 s"),
     ("10^5-row .xlsx read against openpyxl", ">= 10x faster"),
     ("10^4 walls end to end, all outputs", "< 15 s"),
     ("10^5-wall map", "< 10 s and < 40 MB"),
@@ -226,12 +259,15 @@ def main(argv: list[str] | None = None) -> None:
     print(f"wallscreen benchmarks: {machine()}")
     if args.quick:
         _table("Engine (walls x 3 cases)", engine_rows([1_000], scalar_n=200))
+        _table("Every bed joint (method.md §8) and the §9 search", joint_rows(1_000))
         return
     browser = not args.no_browser and shutil.which("chromium") is not None
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
         engine = engine_rows([1_000, 10_000, 100_000, 1_000_000], scalar_n=2_000)
         _table("Engine (walls x 3 cases; per-wall Python timed on 2,000 walls, scaled)", engine)
+        joints = joint_rows(100_000)
+        _table("Every bed joint (method.md §8) and the §9 search", joints)
         reads = read_rows(100_000, folder)
         _table("Reading a register", reads)
         e2e = end_to_end_rows([10_000, 100_000], folder)
@@ -243,6 +279,7 @@ def main(argv: list[str] | None = None) -> None:
         f"{big['engine s']:.2f} s",
         f"{min(r['engine speed-up'] for r in engine[1:]):.0f}x (10^4 and up)",
         f"{big['engine / floor']:.1f}x at 10^6",
+        f"{joints[-1]['engine s (3 cases)']:.2f} s",
         f"{reads[0]['vs openpyxl']:.1f}x",
         f"{e2e[0]['total s']:.1f} s",
         f"{maps[-1]['build s']:.1f} s, {maps[-1]['HTML MB']:.0f} MB",
@@ -251,6 +288,7 @@ def main(argv: list[str] | None = None) -> None:
         big["engine s"] < 3,
         min(r["engine speed-up"] for r in engine[1:]) >= 100,
         big["engine / floor"] <= 10,
+        float(joints[-1]["engine s (3 cases)"]) < 2,  # type: ignore[arg-type]
         reads[0]["vs openpyxl"] >= 10,
         e2e[0]["total s"] < 15,
         maps[-1]["build s"] < 10 and maps[-1]["HTML MB"] < 40,

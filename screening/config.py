@@ -42,6 +42,35 @@ class Default:
 
 
 @dataclass(frozen=True)
+class CaseCriteria:
+    """Required factors and the limit on the resultant for one case (method.md §12).
+
+    ``None`` takes the top-level value (``fos_sliding_required``, ``fos_overturning_required``;
+    ``resultant_limit`` 1/3, the middle third).
+    """
+
+    fos_sliding_required: float | None = None
+    fos_overturning_required: float | None = None
+    resultant_limit: float | None = None
+    """Fraction of B/2 that the eccentricity |e| may reach (1/3: the middle third; 1/2: 75 % of
+    the base in compression)."""
+
+
+BY_LOAD_CATEGORY = _frozen(
+    {
+        "drained": CaseCriteria(1.5, 2.0, 1 / 3),
+        "blocked": CaseCriteria(1.33, 1.5, 1 / 2),
+        "surveyed": CaseCriteria(1.5, 2.0, 1 / 3),
+    }
+)
+BY_LOAD_CATEGORY_SOURCE = (
+    "by_load_category: drained and surveyed usual, blocked unusual; values from memory of "
+    "US Army Corps of Engineers EM 1110-2-2100, §3-6 (load categories)"
+)
+"""The built-in criteria set ``criteria = "by_load_category"``."""
+
+
+@dataclass(frozen=True)
 class Config:
     """All options of a screening run, with the source of every default.
 
@@ -84,6 +113,32 @@ class Config:
     joint_friction_deg: Default = Default(35.0, "masonry on masonry, NAVFAC DM 7.02 Table 1")
     lean_deg: Default = Default(0.0, "no lean recorded: plumb assumed")
     front_batter_m: Default = Default(0.0, "no batter recorded: vertical front assumed")
+    # --- every bed joint of a masonry wall (method.md §8; GEO Report 31, Hong Kong; Alejano et
+    # al., Géotechnique 62(11), 2012: old masonry fails on bed joints above the base)
+    joint_planes: int = 10
+    """N: the planes z = k·H/N, k = 1 … N−1, are checked; 0 (or 1) switches the check off."""
+    joint_check_materials: tuple[str, ...] = ("stone_masonry", "brick_masonry", "drystone")
+    """Materials whose bed joints are checked (mass concrete is monolithic between lifts)."""
+    # --- bearing resistance after EN 1997-1 Annex D, where foundation_friction_deg is given (§10)
+    fos_bearing_required: float = 3.0
+    """Global factor on the ultimate bearing resistance (customary; common practice, from memory)."""
+    foundation_cohesion_kpa: Default = Default(0.0, "not recorded: no effective cohesion (conservative)")
+    foundation_unit_weight_kn_m3: Default = Default(19.0, "common practice for granular soil")
+    embedment_m: Default = Default(
+        0.0, "not recorded: base at the level of the ground in front (conservative)"
+    )
+    # --- passive resistance in front of the toe (method.md §11)
+    passive_mobilisation: float = 0.0
+    """Share m of the Rankine passive resistance added to the base's sliding resistance; 0 ignores
+    it (method.md §3). Full passive resistance needs far more movement than the active state, so
+    a half or less is customary where it is relied on at all (common practice, from memory)."""
+    toe_excavation_m: float = 0.0
+    """Depth of unplanned excavation in front of the toe taken off the embedment (trenches and
+    regrading; BS 8002 allows for unplanned excavation, common practice)."""
+    # --- criteria per case (method.md §12): empty = the top-level factors in every case
+    criteria: Mapping[str, CaseCriteria] = field(default_factory=lambda: _frozen({}))
+    criteria_source: str = ""
+    """Where the criteria per case come from (shown in the outputs)."""
     # --- foundation: (allowable bearing kPa, base friction deg)
     foundation_allowable_bearing_kpa: Mapping[str, float] = field(
         default_factory=lambda: _frozen(
@@ -137,6 +192,28 @@ class Config:
     """Walls screened per pass; larger registers go through the engine in chunks, which bounds
     its working memory and keeps its arrays in cache (20,000 was fastest here: benchmarks/)."""
 
+    def __post_init__(self) -> None:
+        _validate(self)
+
+    @property
+    def criteria_set(self) -> bool:
+        """Whether criteria per case are in use (then ``resultant`` replaces ``middle_third``)."""
+        return bool(self.criteria)
+
+    def case_criteria(self) -> dict[str, CaseCriteria]:
+        """The required factors and resultant limit of every case, missing keys filled."""
+        out = {}
+        for case in CASES:
+            c = self.criteria.get(case, CaseCriteria())
+            out[case] = CaseCriteria(
+                self.fos_sliding_required if c.fos_sliding_required is None else c.fos_sliding_required,
+                self.fos_overturning_required
+                if c.fos_overturning_required is None
+                else c.fos_overturning_required,
+                1 / 3 if c.resultant_limit is None else c.resultant_limit,
+            )
+        return out
+
     def to_dict(self) -> dict[str, Any]:
         """Plain nested dict of every setting (for the settings sheet and the history)."""
 
@@ -150,6 +227,76 @@ class Config:
             return value
 
         return {f.name: plain(getattr(self, f.name)) for f in dataclasses.fields(self)}
+
+
+def _validate(c: Config) -> None:
+    """Reject settings that cannot be right, naming the setting, the value and what is expected."""
+
+    def need(ok: bool, name: str, value: object, expected: str) -> None:
+        if not ok:
+            raise ConfigError(f"setting {name} = {value!r}: expected {expected}")
+
+    for name in ("fos_sliding_required", "fos_overturning_required", "fos_bearing_required"):
+        value = getattr(c, name)
+        need(value > 0, name, value, "a factor above 0")
+    need(
+        isinstance(c.joint_planes, int) and 0 <= c.joint_planes <= 1000,
+        "joint_planes",
+        c.joint_planes,
+        "a whole number from 0 (off) to 1000",
+    )
+    unknown = [m for m in c.joint_check_materials if m not in MATERIALS]
+    need(not unknown, "joint_check_materials", list(c.joint_check_materials), f"materials from {MATERIALS}")
+    need(
+        0 <= c.passive_mobilisation <= 1,
+        "passive_mobilisation",
+        c.passive_mobilisation,
+        "a share from 0 to 1",
+    )
+    need(c.toe_excavation_m >= 0, "toe_excavation_m", c.toe_excavation_m, "a depth of 0 m or more")
+    for case, crit in c.criteria.items():
+        need(case in CASES, "criteria", case, f"a table per case, named from {CASES}")
+        for key in ("fos_sliding_required", "fos_overturning_required"):
+            value = getattr(crit, key)
+            need(value is None or value > 0, f"criteria.{case}.{key}", value, "a factor above 0")
+        limit = crit.resultant_limit
+        need(
+            limit is None or 0 < limit <= 1,
+            f"criteria.{case}.resultant_limit",
+            limit,
+            "a fraction of B/2 above 0 and up to 1 "
+            "(1/3 = middle third, 1/2 = 75 % of the base in compression)",
+        )
+
+
+def _criteria(value: Any) -> tuple[Mapping[str, CaseCriteria], str]:
+    """``criteria = "by_load_category"`` or ``[criteria.<case>]`` tables (method.md §12)."""
+    if isinstance(value, str):
+        if value != "by_load_category":
+            raise ConfigError(
+                f'setting criteria = {value!r}: expected "by_load_category" or [criteria.<case>] tables'
+            )
+        return BY_LOAD_CATEGORY, BY_LOAD_CATEGORY_SOURCE
+    if not isinstance(value, Mapping):
+        raise ConfigError('setting criteria: expected "by_load_category" or [criteria.<case>] tables')
+    keys = {f.name for f in dataclasses.fields(CaseCriteria)}
+    out: dict[str, CaseCriteria] = {}
+    for case, table in value.items():
+        if case not in CASES:
+            raise ConfigError(f"setting criteria: unknown case {case!r}; the cases are {', '.join(CASES)}")
+        if not isinstance(table, Mapping):
+            raise ConfigError(f"setting criteria.{case}: expected a table with {', '.join(sorted(keys))}")
+        unknown = set(table) - keys
+        if unknown:
+            raise ConfigError(
+                f"setting criteria.{case}: unknown key(s) {sorted(unknown)}; "
+                f"known keys are {', '.join(sorted(keys))}"
+            )
+        for k, v in table.items():
+            if isinstance(v, bool) or not isinstance(v, (int, float)):
+                raise ConfigError(f"setting criteria.{case}.{k} = {v!r}: expected a number")
+        out[case] = CaseCriteria(**{k: float(v) for k, v in table.items()})
+    return _frozen(out), "criteria per case set in the config file"
 
 
 def load_config(path: str | Path | None) -> Config:
@@ -175,7 +322,17 @@ def load_config(path: str | Path | None) -> Config:
                 f"{path}: unknown setting {key!r}; known settings are {', '.join(sorted(known))}"
             )
         current = getattr(base, key)
-        if isinstance(current, PrioritySettings):
+        if key == "criteria":
+            try:
+                changes["criteria"], source = _criteria(value)
+            except ConfigError as exc:
+                raise ConfigError(f"{path}: {exc}") from exc
+            changes.setdefault("criteria_source", source)
+        elif key == "joint_check_materials":
+            if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
+                raise ConfigError(f'{path}: setting {key!r} must be a list of materials, e.g. ["drystone"]')
+            changes[key] = tuple(value)
+        elif isinstance(current, PrioritySettings):
             if not isinstance(value, Mapping):
                 raise ConfigError(f"{path}: setting {key!r} must be a table")
             names = {f.name for f in dataclasses.fields(current)}
@@ -210,7 +367,12 @@ def load_config(path: str | Path | None) -> Config:
         elif isinstance(current, (int, float)):
             if isinstance(value, bool) or not isinstance(value, (int, float)):
                 raise ConfigError(f"{path}: setting {key!r} must be a number, got {value!r}")
+            if isinstance(current, int) and not float(value).is_integer():
+                raise ConfigError(f"{path}: setting {key!r} must be a whole number, got {value!r}")
             changes[key] = type(current)(value)
         else:
             changes[key] = str(value)
-    return dataclasses.replace(base, **changes)
+    try:
+        return dataclasses.replace(base, **changes)
+    except ConfigError as exc:
+        raise ConfigError(f"{path}: {exc}") from exc

@@ -132,6 +132,10 @@ def _create(path: Path) -> None:
             os.unlink(tmp)
 
 
+def _stored_columns(con: sqlite3.Connection) -> set[str]:
+    return {row[1] for row in con.execute(f"PRAGMA table_info({WALLS})")}
+
+
 def _connect(path: Path) -> sqlite3.Connection:
     con = sqlite3.connect(path, timeout=60.0, isolation_level=None)
     con.execute("PRAGMA busy_timeout = 60000")
@@ -182,6 +186,9 @@ def record_run(
         if same:
             con.execute("ROLLBACK")
             return Recorded(run["run_id"], stored=False, same_as=same[0])
+        for c in cols:  # columns added since the file was created (a history of an earlier version)
+            if c not in _stored_columns(con):
+                con.execute(f'ALTER TABLE {WALLS} ADD COLUMN "{c}" {_sql_type(c)}')
         names = ", ".join(f'"{c}"' for c in RUN_COLUMNS)
         con.execute(
             f"INSERT INTO {RUNS} ({names}) VALUES ({', '.join('?' * len(RUN_COLUMNS))})",
@@ -228,8 +235,12 @@ def run_walls(path: str | Path, run_id: str) -> pd.DataFrame:
     cols = ["wall_id", *INPUT_COLUMNS, *KEPT_RESULTS]
     con = _connect(Path(path))
     try:
+        # a history written by an earlier version lacks the columns added since: they are left
+        # out, so the comparison does not report them as changed (SQLite would read an unknown
+        # "quoted" name as a text literal, so ask first)
+        present = [c for c in cols if c in _stored_columns(con)]
         frame = pd.read_sql_query(
-            f"SELECT {', '.join(chr(34) + c + chr(34) for c in cols)} FROM {WALLS} WHERE run_id = ?",
+            f"SELECT {', '.join(chr(34) + c + chr(34) for c in present)} FROM {WALLS} WHERE run_id = ?",
             con,
             params=(run_id,),
         )
@@ -332,7 +343,9 @@ def compare(before: pd.DataFrame, after: pd.DataFrame, rejected: Sequence[str] =
         if col == "survey_date":
             continue
         xn, yn = pd.to_numeric(x, errors="coerce"), pd.to_numeric(y, errors="coerce")
-        if xn.notna().any() or yn.notna().any():
+        # a number column blank throughout still compares as numbers (SQLite gives it back as text)
+        numeric = pd.api.types.is_numeric_dtype(x) or pd.api.types.is_numeric_dtype(y)
+        if numeric or xn.notna().any() or yn.notna().any():
             differ = ~np.isclose(xn.astype(float), yn.astype(float), rtol=0, atol=1e-6, equal_nan=True)
             fmt = lambda v, c=col: "blank" if pd.isna(v) else _input_text(c, float(v))  # noqa: E731
         else:

@@ -15,7 +15,8 @@ import pandas as pd
 
 from screening import priority
 from screening.config import CASES, Config
-from screening.core.engine import GOVERNING, run_cases
+from screening.core import critical
+from screening.core.engine import BEARING_METHODS, GOVERNING, run_cases
 from screening.core.stability import FLOATING, STATES
 from screening.history import INPUT_COLUMNS, lean_rates
 from screening.prepare import Prepared, prepare
@@ -38,7 +39,11 @@ RESULT_COLUMNS = (
     "heel_pressure_kpa",
     "fos_sliding",
     "fos_overturning",
+    "passive_resistance_kn_m",
     "middle_third_utilisation",
+    "resultant_utilisation",
+    "bearing_method",
+    "bearing_resistance_kn_m",
     "bearing_utilisation",
     "sliding_utilisation",
     "overturning_utilisation",
@@ -46,12 +51,24 @@ RESULT_COLUMNS = (
     "crack_middle_third_utilisation",
     "crack_fos_overturning",
     "crack_fos_sliding",
+    "joint_height_m",
+    "joint_middle_third_utilisation",
+    "joint_sliding_utilisation",
+    "joint_overturning_utilisation",
     "utilisation",
     "governing_check",
     "margin",
     "state",
 )
 """The columns of ``results.csv``, in order (the output contract)."""
+
+CRITICAL_COLUMNS = (
+    "critical_water_height_m",
+    "critical_water_fraction",
+    "critical_lean_deg",
+    "years_to_critical_lean",
+)
+"""The figures of method.md §9, per wall in ``walls.csv``."""
 
 
 class RejectedRowsWarning(UserWarning):
@@ -98,11 +115,40 @@ def screen_prepared(prepared: Prepared, config: Config, progress: Progress | Non
         frame["governing_check"] = pd.Categorical.from_codes(
             frame["governing_check"], categories=list(GOVERNING)
         )
+        frame["bearing_method"] = pd.Categorical.from_codes(
+            frame["bearing_method"], categories=list(BEARING_METHODS)
+        )
         frame["case"] = pd.Categorical.from_codes(frame["case"], categories=list(CASES), ordered=True)
         frame.insert(0, "wall_id", ids[index])
         frame["_wall"] = index
         pieces.append(frame)
     return pd.concat(pieces, ignore_index=True)
+
+
+def critical_figures(prepared: Prepared, config: Config, progress: Progress | None = None) -> pd.DataFrame:
+    """Critical water height, its fraction of H_r, and the critical lean per wall (method.md §9).
+
+    In chunks of ``config.chunk_size`` walls, as the screening; one row per wall in the order
+    of ``prepared.walls``. ``years_to_critical_lean`` is added with the lean rates
+    (:func:`add_priority`).
+    """
+    n = len(prepared.walls)
+    size = max(int(config.chunk_size), 1)
+    water, lean = np.full(n, np.nan), np.full(n, np.nan)
+    for start in range(0, n, size):
+        chunk = {k: v[start : start + size] for k, v in prepared.inputs.items()}
+        if progress is not None and n > size:
+            progress(
+                f"critical water height and lean, walls {start + 1:,}-{start + len(chunk['height_m']):,}"
+            )
+        water[start : start + size] = critical.critical_water_height(chunk, config)
+        lean[start : start + size] = critical.critical_lean(chunk, config)
+    retained = prepared.inputs["retained_height_m"] if n else np.zeros(0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        fraction = np.where(water == 0, 0.0, water / retained)
+    return pd.DataFrame(
+        {"critical_water_height_m": water, "critical_water_fraction": fraction, "critical_lean_deg": lean}
+    )
 
 
 def summarise_walls(results: pd.DataFrame, walls: pd.DataFrame) -> pd.DataFrame:
@@ -150,6 +196,14 @@ def add_priority(
     s = config.priority
     inputs = walls.iloc[summary.index.to_numpy()].reset_index(drop=True)
     out = summary.reset_index(drop=True)
+    if "critical_lean_deg" in out:
+        rate = inputs["lean_rate_deg_per_year"] if "lean_rate_deg_per_year" in inputs else np.nan
+        out["years_to_critical_lean"] = critical.years_to_critical_lean(
+            out["critical_lean_deg"].to_numpy(float),
+            inputs["lean_deg"].to_numpy(float),
+            np.broadcast_to(np.asarray(rate, dtype=float), len(out)),
+        )
+        inputs = inputs.assign(**{c: out[c].to_numpy() for c in CRITICAL_COLUMNS})
     like = priority.likelihood(
         out["utilisation_surveyed"],
         out["utilisation_blocked"],
@@ -234,7 +288,9 @@ def evaluate(
         empty = pd.DataFrame({c: pd.Series(dtype=object) for c in RESULT_COLUMNS})
         return Screening(prepared, empty, pd.DataFrame(), prepared.problems, config)
     results = screen_prepared(prepared, config, progress)
-    walls = add_priority(summarise_walls(results, prepared.walls), prepared.walls, results, config)
+    summary = summarise_walls(results, prepared.walls)
+    summary = summary.join(critical_figures(prepared, config, progress))
+    walls = add_priority(summary, prepared.walls, results, config)
     problems = pd.concat([prepared.problems, _floating_problems(results, prepared.walls)], ignore_index=True)
     return Screening(prepared, results, walls, problems, config)
 

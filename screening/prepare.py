@@ -230,14 +230,27 @@ def validate(w: pd.DataFrame, config: Config, log: _Log) -> None:
     _range(log, w, "front_batter_m", 0, None, "expected a front batter of 0 m or more")
     _range(log, w, "retained_height_m", 0, None, "expected a retained height of 0 m or more")
     _range(log, w, "lean_deg", -30, 30, "expected a lean between -30° and 30°")
-    _range(log, w, "lean_deg", -10, 10, "lean over 10°: check the survey", severity="warning")
-    for col in ("wall_unit_weight_kn_m3", "soil_unit_weight_kn_m3", "soil_saturated_unit_weight_kn_m3"):
+    _range(
+        log,
+        w,
+        "lean_deg",
+        -5,
+        5,
+        "a lean over 5° is implausible for a standing wall: check the survey",
+        severity="warning",
+    )
+    for col in (
+        "wall_unit_weight_kn_m3",
+        "soil_unit_weight_kn_m3",
+        "soil_saturated_unit_weight_kn_m3",
+        "foundation_unit_weight_kn_m3",
+    ):
         _range(log, w, col, 10, 30, "expected a unit weight between 10 and 30 kN/m³")
     _range(log, w, "soil_friction_deg", 0, 50, "expected an angle above 0° and up to 50°", lo_open=True)
     _range(log, w, "wall_friction_deg", 0, 45, "expected an angle between 0° and 45°")
     _range(log, w, "backfill_slope_deg", -45, 45, "expected a slope between -45° and 45°")
     _range(log, w, "surcharge_kpa", 0, 500, "expected a surcharge between 0 and 500 kPa")
-    for col in ("base_friction_deg", "joint_friction_deg"):
+    for col in ("base_friction_deg", "joint_friction_deg", "foundation_friction_deg"):
         _range(log, w, col, 0, 50, "expected an angle above 0° and up to 50°", lo_open=True)
     _range(
         log,
@@ -248,6 +261,8 @@ def validate(w: pd.DataFrame, config: Config, log: _Log) -> None:
         "expected an allowable bearing pressure above 0 kPa",
         lo_open=True,
     )
+    _range(log, w, "foundation_cohesion_kpa", 0, 500, "expected an effective cohesion between 0 and 500 kPa")
+    _range(log, w, "embedment_m", 0, None, "expected an embedment of 0 m or more")
     _range(log, w, "water_height_m", 0, None, "expected a water height of 0 m or more")
     _range(log, w, "condition_rating", 1, 5, "expected a condition rating from 1 to 5")
     log.problem(
@@ -263,15 +278,23 @@ def validate(w: pd.DataFrame, config: Config, log: _Log) -> None:
 
 
 def fill_defaults(w: pd.DataFrame, config: Config, log: _Log) -> pd.DataFrame:
-    """Fill blanks from method.md §7 and record each default used."""
+    """Fill blanks from method.md §7 and record each default used, one group at a time."""
     w = w.copy()
+    for step in (_fill_wall, _fill_soil, _fill_foundation, _fill_foundation_soil, _fill_owner, _fill_water):
+        step(w, config, log)
+    return w
 
-    def simple(col: str) -> None:
-        d = getattr(config, col)
-        blank = w[col].isna()
-        log.assume(blank, col, d.value, d.source)
-        w[col] = w[col].fillna(d.value)
 
+def _fill_simple(w: pd.DataFrame, config: Config, log: _Log, col: str, used: pd.Series | None = None) -> None:
+    """A blank takes the config's default; recorded where the value is used (every wall by default)."""
+    d = getattr(config, col)
+    blank = w[col].isna()
+    log.assume(blank if used is None else blank & used, col, d.value, d.source)
+    w[col] = w[col].fillna(d.value)
+
+
+def _fill_wall(w: pd.DataFrame, config: Config, log: _Log) -> None:
+    """Material, unit weight, and whether the bed joints are checked (method.md §7, §8)."""
     material_blank = w["material"].isna() & w["wall_unit_weight_kn_m3"].isna()
     log.assume(material_blank, "material", config.material_default, "config material_default: not recorded")
     material = w["material"].fillna(config.material_default)
@@ -280,7 +303,15 @@ def fill_defaults(w: pd.DataFrame, config: Config, log: _Log) -> pd.DataFrame:
     blank = w["wall_unit_weight_kn_m3"].isna()
     log.assume(blank, "wall_unit_weight_kn_m3", material.map(weights), material.map(sources))
     w["wall_unit_weight_kn_m3"] = w["wall_unit_weight_kn_m3"].fillna(material.map(weights).astype(float))
-
+    # the material in use decides the bed-joint check, also where only the unit weight is recorded
+    checked = material.isin(config.joint_check_materials) & (config.joint_planes >= 2)
+    log.assume(
+        w["material"].isna() & ~material_blank & checked,
+        "material",
+        config.material_default,
+        "config material_default: not recorded; decides the bed-joint check (method.md §8)",
+    )
+    w["joint_check"] = checked.astype(float)
     blank = w["retained_height_m"].isna()
     log.assume(
         blank,
@@ -289,19 +320,25 @@ def fill_defaults(w: pd.DataFrame, config: Config, log: _Log) -> pd.DataFrame:
         "not recorded: retained to the full height (shared/inventory.md)",
     )
     w["retained_height_m"] = w["retained_height_m"].fillna(w["height_m"])
+    for col in ("front_batter_m", "lean_deg", "joint_friction_deg"):
+        _fill_simple(w, config, log, col)
+
+
+def _fill_soil(w: pd.DataFrame, config: Config, log: _Log) -> None:
+    """The retained soil and what stands on it (method.md §7)."""
     for col in (
-        "front_batter_m",
-        "lean_deg",
         "soil_unit_weight_kn_m3",
         "soil_saturated_unit_weight_kn_m3",
         "soil_friction_deg",
         "wall_friction_deg",
         "backfill_slope_deg",
         "surcharge_kpa",
-        "joint_friction_deg",
     ):
-        simple(col)
+        _fill_simple(w, config, log, col)
 
+
+def _fill_foundation(w: pd.DataFrame, config: Config, log: _Log) -> None:
+    """Presumed bearing pressure and base friction from the foundation class (method.md §7)."""
     needs_foundation = w["foundation"].isna() & (
         w["allowable_bearing_kpa"].isna() | w["base_friction_deg"].isna()
     )
@@ -318,6 +355,23 @@ def fill_defaults(w: pd.DataFrame, config: Config, log: _Log) -> pd.DataFrame:
         log.assume(blank, col, values, config.foundation_source + ", " + foundation)
         w[col] = w[col].fillna(values)
 
+
+def _fill_foundation_soil(w: pd.DataFrame, config: Config, log: _Log) -> None:
+    """c', γ_f and embedment of the soil under the base (method.md §10, §11).
+
+    Every blank is filled, but recorded only for the walls that use the value: Annex D
+    bearing (``foundation_friction_deg`` given) and, with ``passive_mobilisation`` on, passive
+    resistance. ``foundation_friction_deg`` itself has no default: blank means presumed bearing.
+    """
+    annex_d = w["foundation_friction_deg"].notna()
+    passive = pd.Series(config.passive_mobilisation > 0, index=w.index)
+    _fill_simple(w, config, log, "foundation_cohesion_kpa", annex_d)
+    _fill_simple(w, config, log, "foundation_unit_weight_kn_m3", annex_d | passive)
+    _fill_simple(w, config, log, "embedment_m", annex_d | passive)
+
+
+def _fill_owner(w: pd.DataFrame, config: Config, log: _Log) -> None:
+    """What a failure would hit and the surveyed condition."""
     blank = w["consequence"].isna()
     log.assume(blank, "consequence", config.consequence_default, "config consequence_default: not recorded")
     w["consequence"] = w["consequence"].fillna(config.consequence_default)
@@ -325,7 +379,9 @@ def fill_defaults(w: pd.DataFrame, config: Config, log: _Log) -> pd.DataFrame:
     log.assume(blank, "condition_rating", config.condition_default.value, config.condition_default.source)
     w["condition_rating"] = w["condition_rating"].fillna(config.condition_default.value)
 
-    # the surveyed case: measured water if recorded, else the drainage state
+
+def _fill_water(w: pd.DataFrame, config: Config, log: _Log) -> None:
+    """The surveyed case: measured water if recorded, else the drainage state (method.md §4)."""
     no_water = w["water_height_m"].isna()
     drain_blank = w["drainage"].isna() & no_water
     log.assume(drain_blank, "drainage", "unknown", "not recorded: drainage unknown")
@@ -343,7 +399,6 @@ def fill_defaults(w: pd.DataFrame, config: Config, log: _Log) -> pd.DataFrame:
         + " × retained height (config drainage_water_fraction)",
     )
     w["surveyed_water_height_m"] = surveyed
-    return w
 
 
 def check_geometry(w: pd.DataFrame, log: _Log) -> None:
@@ -379,6 +434,29 @@ def check_geometry(w: pd.DataFrame, log: _Log) -> None:
         w["soil_saturated_unit_weight_kn_m3"] <= 9.81,
         "soil_saturated_unit_weight_kn_m3",
         "saturated unit weight must exceed that of water (9.81 kN/m³)",
+    )
+    _check_plausible(w, log)
+
+
+def _check_plausible(w: pd.DataFrame, log: _Log) -> None:
+    """Figures that can be screened but are unlikely to be right: warnings, the row is kept."""
+    log.problem(
+        w["wall_friction_deg"] > w["soil_friction_deg"],
+        "wall_friction_deg",
+        "wall friction above the soil's friction angle (δ > φ'): not physical; check both values",
+        severity="warning",
+    )
+    log.problem(
+        w["soil_saturated_unit_weight_kn_m3"] < w["soil_unit_weight_kn_m3"],
+        "soil_saturated_unit_weight_kn_m3",
+        "saturated unit weight below the unit weight above the water (γ_sat < γ): check both values",
+        severity="warning",
+    )
+    log.problem(
+        w["embedment_m"] > w["height_m"],
+        "embedment_m",
+        "embedment deeper than the wall is high: check the value (metres expected)",
+        severity="warning",
     )
 
 

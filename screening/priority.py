@@ -146,6 +146,10 @@ _CHECK_WORDS = {
     "crack_middle_third": "above the crack the resultant leaves the middle third",
     "crack_sliding": "sliding on the crack is short",
     "crack_overturning": "overturning about the crack is short",
+    "resultant": "the resultant leaves the permitted part of the base",
+    "joint_middle_third": "above a bed joint the resultant leaves the middle third",
+    "joint_sliding": "sliding on a bed joint is short",
+    "joint_overturning": "overturning about a bed joint is short",
     "vertical_load": "uplift exceeds the weight",
 }
 
@@ -154,23 +158,70 @@ def _when(mask: ArrayLike, text: NDArray[np.object_]) -> NDArray[np.object_]:
     return np.where(np.asarray(mask, dtype=bool), text, "").astype(object)
 
 
+LEAN_CAUTION = "a projection, not a prediction: drystone can collapse with little warning movement"
+"""Said beside every years-to-critical-lean figure (method.md §9; Powrie et al., Géotechnique
+52(6), 2002: unweathered drystone can collapse with little warning movement)."""
+
+
+def _metres(values: ArrayLike) -> NDArray[np.object_]:
+    """Heights as text: two decimals below 1 m (so that 0.04 m does not read 0.0), else one."""
+    v = np.asarray(values, dtype=float)
+    return np.where(v < 0.995, _fmt(v, 2), _fmt(v, 1)).astype(object)
+
+
+def _critical_parts(walls: pd.DataFrame) -> tuple[NDArray[np.object_], NDArray[np.object_]]:
+    """The §9 figures in words where they matter (method.md §9).
+
+    The critical water height where there is one above 0 (at 0 the wall fails drained, which
+    the case parts already say); the years to the critical lean where the lean is growing
+    towards it, with the caution beside the figure.
+    """
+    water = years_part = np.full(len(walls), "", dtype=object)
+    if "critical_water_height_m" in walls:
+        h = walls["critical_water_height_m"].to_numpy(dtype=float)
+        top = walls["retained_height_m"].to_numpy(dtype=float)
+        text = "fails once water rises above " + _metres(h) + " m of " + _metres(top) + " m"
+        water = _when(np.isfinite(h) & (h > 0), text)
+    if "years_to_critical_lean" in walls:
+        years = walls["years_to_critical_lean"].to_numpy(dtype=float)
+        crit = walls["critical_lean_deg"].to_numpy(dtype=float)
+        shown = np.where(years < 1, "within a year", "in about " + _fmt(np.round(years), 0) + " years")
+        text = (
+            "lean reaches " + _fmt(crit, 1) + "° (resultant at the toe) " + shown + " at the present rate, "
+        )
+        years_part = _when(np.isfinite(years) & (years > 0), text + LEAN_CAUTION)
+    return water, years_part
+
+
+def _check_words(r: pd.DataFrame) -> NDArray[np.object_]:
+    """The governing check of each row in words (the bed joint with its height)."""
+    name = r["governing_check"].to_numpy(dtype=object)
+    words = pd.Series(name).map(_CHECK_WORDS).fillna("").to_numpy(dtype=object)
+    if "bearing_method" in r:
+        annex_d = (name == "bearing") & (r["bearing_method"].to_numpy(dtype=object) == "annex_d")
+        words = np.where(annex_d, "the bearing resistance is short (EN 1997-1 Annex D)", words)
+    if "joint_height_m" in r:
+        joint = pd.Series(name).astype(str).str.startswith("joint_").to_numpy()
+        at = " (bed joint at " + _metres(r["joint_height_m"].to_numpy(dtype=float)) + " m)"
+        words = np.where(joint, words + at, words)
+    outside = r["state"].to_numpy(dtype=object) == "resultant_outside_base"
+    return np.where(outside, "the resultant falls outside the base", words).astype(object)
+
+
 def reasons(walls: pd.DataFrame, by_case: Mapping[str, pd.DataFrame]) -> NDArray[np.object_]:
     """A one-line reason in plain words for each wall, built column-wise (object arrays).
 
     ``walls`` needs ``condition_rating``, ``lean_deg``, ``crack_height_m``, ``consequence``,
-    ``height_m`` (and optionally ``lean_rate_deg_per_year``, ``lean_growing``); ``by_case``
+    ``height_m`` (and optionally ``lean_rate_deg_per_year``, ``lean_growing``, and the §9
+    figures ``critical_water_height_m`` with ``retained_height_m``, ``critical_lean_deg`` and
+    ``years_to_critical_lean``); ``by_case``
     the results of the ``surveyed`` and ``blocked`` cases, row for row with ``walls``.
     """
     parts: list[NDArray[np.object_]] = []
     for case, words in (("surveyed", "as surveyed "), ("blocked", "with drains blocked ")):
         r = by_case[case]
         util = r["utilisation"].to_numpy(dtype=float)
-        check = pd.Series(r["governing_check"].to_numpy(dtype=object)).map(_CHECK_WORDS).fillna("")
-        check = np.where(
-            r["state"].to_numpy(dtype=object) == "resultant_outside_base",
-            "the resultant falls outside the base",
-            check.to_numpy(dtype=object),
-        ).astype(object)
+        check = _check_words(r)
         parts.append(_when(util > 1, words + check + " (utilisation " + _fmt(util, 2) + ")"))
     # say the blocked case only where it adds to the surveyed one
     same = (parts[1] != "") & (
@@ -178,6 +229,8 @@ def reasons(walls: pd.DataFrame, by_case: Mapping[str, pd.DataFrame]) -> NDArray
         == np.char.replace(parts[0].astype(str), "as surveyed ", "")
     )
     parts[1] = _when(~same, parts[1])
+    water, years = _critical_parts(walls)
+    parts.append(water)
     cond = walls["condition_rating"].to_numpy(dtype=float)
     parts.append(_when(cond >= 3, "condition " + _fmt(cond, 0)))
     lean = walls["lean_deg"].to_numpy(dtype=float)
@@ -188,6 +241,7 @@ def reasons(walls: pd.DataFrame, by_case: Mapping[str, pd.DataFrame]) -> NDArray
             walls["lean_growing"].fillna(False).to_numpy(dtype=bool) if "lean_growing" in walls else rate > 0
         )
         parts.append(_when(growing, "lean growing " + _fmt(rate, 2) + "°/yr"))
+    parts.append(years)
     crack = walls["crack_height_m"].to_numpy(dtype=float)
     parts.append(_when(np.isfinite(crack), "crack at " + _fmt(crack, 1) + " m"))
     below = np.char.replace(walls["consequence"].to_numpy(dtype=str), "_", " ").astype(object)

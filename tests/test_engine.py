@@ -7,6 +7,7 @@ import math
 
 import numpy as np
 import pandas as pd
+import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
@@ -14,11 +15,22 @@ from scipy import integrate
 
 from benchmarks.scalar import screen_wall
 from screening import Config, schema, screen
-from screening.core.engine import ENGINE_INPUTS, decode, run_cases
+from screening.config import load_config
+from screening.core.engine import DERIVED_INPUTS, ENGINE_INPUTS, decode, run_cases
 from screening.core.stability import base_pressure
 from screening.pipeline import RESULT_COLUMNS
 from screening.prepare import prepare
 from tests.conftest import worked_wall
+
+
+def load_config_text(text: str) -> Config:
+    import tempfile
+    from pathlib import Path
+
+    with tempfile.TemporaryDirectory() as tmp:
+        path = Path(tmp) / "config.toml"
+        path.write_text(text, encoding="utf-8")
+        return load_config(path)
 
 
 def _case(results: pd.DataFrame, wall: str, case: str) -> pd.Series:
@@ -95,26 +107,62 @@ def _random_register(n: int, seed: int) -> pd.DataFrame:
     )
 
 
-def test_engine_matches_independent_per_wall_implementation() -> None:
+def _with_foundation_soil(reg: pd.DataFrame, seed: int) -> pd.DataFrame:
+    """Some walls with the soil under the base recorded (Annex D bearing, method.md §10)."""
+    rng = np.random.default_rng(seed)
+    n = len(reg)
+    given = rng.random(n) < 0.4
+    return reg.assign(
+        foundation_friction_deg=np.where(given, rng.uniform(22, 38, n), np.nan),
+        foundation_cohesion_kpa=np.where(given & (rng.random(n) < 0.5), rng.uniform(0, 15, n), np.nan),
+        foundation_unit_weight_kn_m3=np.where(rng.random(n) < 0.5, rng.uniform(16, 21, n), np.nan),
+        embedment_m=np.where(rng.random(n) < 0.6, rng.uniform(0, 0.8, n), np.nan),
+    )
+
+
+SCALAR_CONFIGS = {
+    "defaults": Config(),
+    "every option": load_config_text(
+        'criteria = "by_load_category"\npassive_mobilisation = 0.5\ntoe_excavation_m = 0.1\njoint_planes = 7\n'
+    ),
+    "criteria tables": load_config_text(
+        "uplift = false\nfos_bearing_required = 2.5\n[criteria.blocked]\nresultant_limit = 0.45\n"
+        "[criteria.surveyed]\nfos_sliding_required = 1.3\n"
+    ),
+}
+
+
+@pytest.mark.parametrize("name", list(SCALAR_CONFIGS))
+def test_engine_matches_independent_per_wall_implementation(name) -> None:
     # benchmarks/scalar.py: the method written again per wall with the hand method
-    # (pressure blocks, section split into a rectangle and triangles), math module only
-    reg = _random_register(300, seed=7)
-    prepared = prepare(reg)
+    # (pressure blocks, section split into a rectangle and triangles, each bed joint and
+    # the governing check in plain loops), math module only; every result column compared
+    config = SCALAR_CONFIGS[name]
+    reg = _with_foundation_soil(_random_register(300, seed=7), seed=8)
+    prepared = prepare(reg, config)
     assert len(prepared.walls) == 300
-    results = screen(reg)
+    results = screen(reg, config)
     rows = []
     for _i, wall in prepared.walls.iterrows():
         w = {k: float(wall[k]) for k in ENGINE_INPUTS}
-        for res in screen_wall(w):
+        for res in screen_wall(w, config):
             res["wall_id"] = wall["wall_id"]
             rows.append(res)
     ref = pd.DataFrame(rows)
     merged = results.merge(ref, on=["wall_id", "case"], suffixes=("", "_ref"))
     assert len(merged) == 900
-    for col in ref.columns.difference(["wall_id", "case"]):
+    compared = set(ref.columns) & set(RESULT_COLUMNS) - {"wall_id", "case"}
+    assert compared == set(RESULT_COLUMNS) - {"wall_id", "case", "in_middle_third"}
+    for col in sorted(compared):
+        if col in ("governing_check", "state", "bearing_method"):
+            assert (merged[col].astype(str) == merged[f"{col}_ref"].astype(str)).all(), col
+            continue
         assert_allclose(
             merged[col].astype(float), merged[f"{col}_ref"].astype(float), rtol=1e-9, atol=1e-9, err_msg=col
         )
+    # the register exercises what is compared
+    assert (merged.bearing_method == "annex_d").any() and merged.joint_height_m.notna().any()
+    assert merged.governing_check.astype(str).str.startswith("joint").any()
 
 
 @settings(max_examples=200, deadline=None)
@@ -249,5 +297,28 @@ def test_run_cases_is_vectorised_over_arrays() -> None:
 
 def test_engine_inputs_are_canonical_numeric_columns():
     # the engine declares its inputs; each must be a canonical numeric column of the register
-    # (inventory.md), apart from the surveyed water height that preparation derives
-    assert set(ENGINE_INPUTS) - {"surveyed_water_height_m"} <= set(schema.NUMERIC)
+    # (inventory.md), apart from the two that preparation derives (surveyed water, joint check)
+    assert set(DERIVED_INPUTS) == {"surveyed_water_height_m", "joint_check"}
+    assert set(ENGINE_INPUTS) - set(DERIVED_INPUTS) <= set(schema.NUMERIC)
+
+
+def test_lean_beyond_the_toe_never_reads_as_a_pass() -> None:
+    # a slender wall leaning 7°: the weight's lever arm x·cos ω − z·sin ω is negative, on the
+    # base and above the crack. The restoring moment is reported as it is (negative), but the
+    # factor is 0, never negative, and the utilisation infinite (method.md §3: a state)
+    reg = pd.DataFrame(
+        [
+            worked_wall("L", 0.6, height_m=6.0, lean_deg=7.0, crack_height_m=1.0),
+            worked_wall("L0", 0.6, height_m=6.0, lean_deg=7.0, retained_height_m=0.0),
+        ]
+    )
+    res = screen(reg)
+    assert (res.restoring_moment_knm_m < 0).all()
+    assert (res.fos_overturning == 0).all()
+    assert np.isinf(res.overturning_utilisation).all() and np.isinf(res.utilisation).all()
+    assert (res.state == "resultant_outside_base").all() and (res.governing_check == "overturning").all()
+    cracked = res[res.wall_id == "L"]
+    assert (cracked.crack_fos_overturning == 0).all()
+    for col in ("overturning_utilisation", "crack_overturning_utilisation", "joint_overturning_utilisation"):
+        values = run_cases(prepare(reg).inputs, Config())[col]
+        assert not (values < 0).any(), col

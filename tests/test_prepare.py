@@ -136,3 +136,59 @@ def test_register_is_not_modified() -> None:
     before = reg.copy()
     evaluate(reg)
     pd.testing.assert_frame_equal(reg, before)
+
+
+@pytest.mark.parametrize(
+    ("change", "column", "words"),
+    [
+        ({"wall_friction_deg": 32.0}, "wall_friction_deg", "δ > φ'"),
+        ({"soil_saturated_unit_weight_kn_m3": 17.0}, "soil_saturated_unit_weight_kn_m3", "γ_sat < γ"),
+        ({"lean_deg": 6.0}, "lean_deg", "check the survey"),
+        ({"lean_deg": -6.0}, "lean_deg", "check the survey"),
+        ({"embedment_m": 4.0}, "embedment_m", "deeper than the wall"),
+    ],
+)
+def test_implausible_figures_warn_and_keep_the_row(change, column, words) -> None:
+    reg = pd.DataFrame([{**worked_wall("X", 2.0), **change}, worked_wall("GOOD", 2.0)])
+    p = prepare(reg)
+    assert set(p.walls.wall_id) == {"X", "GOOD"}
+    hit = p.problems[p.problems.column == column]
+    assert len(hit) == 1 and hit.severity.iloc[0] == "warning" and words in hit.message.iloc[0]
+    assert hit.row.iloc[0] == 2
+
+
+@pytest.mark.parametrize(
+    ("change", "column", "words"),
+    [
+        ({"foundation_friction_deg": 0.0}, "foundation_friction_deg", "above 0°"),
+        ({"foundation_friction_deg": "firm"}, "foundation_friction_deg", "number"),
+        ({"foundation_cohesion_kpa": -5.0}, "foundation_cohesion_kpa", "between 0 and 500"),
+        ({"foundation_unit_weight_kn_m3": 45.0}, "foundation_unit_weight_kn_m3", "between 10 and 30"),
+        ({"embedment_m": -0.2}, "embedment_m", "0 m or more"),
+    ],
+)
+def test_foundation_soil_columns_are_validated(change, column, words) -> None:
+    reg = pd.DataFrame([{**worked_wall("X", 2.0), **change}, worked_wall("GOOD", 2.0)])
+    problems = _problems(reg)
+    hit = problems[(problems.column == column) & (problems.severity == "error")]
+    assert len(hit) == 1 and words in hit.message.iloc[0], problems
+    assert set(prepare(reg).walls.wall_id) == {"GOOD"}
+
+
+def test_foundation_soil_defaults_are_recorded_where_used() -> None:
+    # method.md §10/§11: c' 0, γ_f 19, embedment 0, recorded for the walls that use them
+    # (Annex D where φ'_f is given; with passive_mobilisation on, every wall)
+    reg = pd.DataFrame([worked_wall("AD", 2.0, foundation_friction_deg=30.0), worked_wall("PR", 2.0)])
+    p = prepare(reg)
+    used = set(p.assumptions.loc[p.assumptions.wall_id == "AD", "column"])
+    assert {"foundation_cohesion_kpa", "foundation_unit_weight_kn_m3", "embedment_m"} <= used
+    assert not {"foundation_cohesion_kpa", "embedment_m"} & set(
+        p.assumptions.loc[p.assumptions.wall_id == "PR", "column"]
+    )
+    filled = p.walls.set_index("wall_id")
+    assert filled.loc["PR", "foundation_unit_weight_kn_m3"] == 19.0 and filled.loc["PR", "embedment_m"] == 0.0
+    assert np.isnan(filled.loc["PR", "foundation_friction_deg"])
+    passive = prepare(reg, Config(passive_mobilisation=0.5)).assumptions
+    assert {"foundation_unit_weight_kn_m3", "embedment_m"} <= set(
+        passive.loc[passive.wall_id == "PR", "column"]
+    )

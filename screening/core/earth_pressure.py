@@ -134,7 +134,8 @@ def water_thrust(water_height_m: ArrayLike, gamma_w_kn_m3: float) -> tuple[Float
     Hydrostatics; K_a is never applied to water (e.g. Craig, *Soil Mechanics*).
     """
     h = np.asarray(water_height_m, dtype=float)
-    return 0.5 * gamma_w_kn_m3 * h**2, gamma_w_kn_m3 * h**3 / 6.0
+    h2 = h * h  # h**3 would go through pow(), several times slower on large arrays
+    return 0.5 * gamma_w_kn_m3 * h2, gamma_w_kn_m3 / 6.0 * (h2 * h)
 
 
 def base_uplift(

@@ -58,17 +58,21 @@ def wall_section(
 ) -> tuple[FloatArray, FloatArray, FloatArray]:
     """Area [m²] and centroid (x from the toe, z from the base) [m] of the wall section.
 
-    The quadrilateral (0,0)-(B,0)-(B−b,H)-(f,H) of method.md §1.
+    The quadrilateral (0,0)-(B,0)-(B−b,H)-(f,H) of method.md §1, a trapezoid with horizontal
+    top and base, in closed form (the shoelace formula of :func:`polygon_properties` gives the
+    same; this is several times faster on the bed-joint planes):
+    A = H(B + t)/2, x_c = (B² − Bb + (b² − f²)/3)/(B + t), z_c = H(B + 2t)/(3(B + t)).
     """
     h = np.asarray(height_m, dtype=float)
     b_w = np.asarray(base_width_m, dtype=float)
     t = np.asarray(top_width_m, dtype=float)
     f = np.asarray(front_batter_m, dtype=float)
-    h, b_w, t, f = np.broadcast_arrays(h, b_w, t, f)
-    zero = np.zeros_like(h)
-    xs = np.stack([zero, b_w, f + t, f], axis=-1)
-    zs = np.stack([zero, zero, h, h], axis=-1)
-    return polygon_properties(xs, zs)
+    back = b_w - f - t
+    width = b_w + t
+    with np.errstate(invalid="ignore", divide="ignore"):
+        x_c = (b_w * (b_w - back) + (back * back - f * f) / 3.0) / width
+        z_c = h * (b_w + 2.0 * t) / (3.0 * width)
+    return np.abs(0.5 * h * width), x_c, z_c
 
 
 def back_wedge(
@@ -106,7 +110,7 @@ def back_wedge(
 
     def triangle(top: FloatArray) -> tuple[FloatArray, FloatArray, FloatArray]:
         # triangle from the heel at z = 0 up to height `top`
-        area = 0.5 * slope * top**2
+        area = 0.5 * slope * (top * top)
         return area, b_w - slope * top / 3.0, 2.0 * top / 3.0
 
     a_full, x_full, z_full = triangle(r)

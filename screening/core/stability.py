@@ -112,10 +112,31 @@ def factor_of_safety(resisting: ArrayLike, disturbing: ArrayLike) -> FloatArray:
     return np.where(den > 0, fos, np.where(num > 0, np.inf, np.nan))
 
 
+def overturning_fos(restoring_moment_knm_m: ArrayLike, overturning_moment_knm_m: ArrayLike) -> FloatArray:
+    """Factor of safety against overturning M_R / M_O, never below 0.
+
+    Where a lean carries the weight beyond the toe the restoring moment is 0 or
+    negative: nothing restores, the factor is 0 (its utilisation infinite) and the
+    resultant lies outside the base (a state, see :func:`base_pressure`). A negative
+    factor would read as a pass once turned into a utilisation.
+
+    References
+    ----------
+    Common practice (e.g. Das, *Principles of Foundation Engineering*).
+    """
+    m_r = np.asarray(restoring_moment_knm_m, dtype=float)
+    return np.where(m_r <= 0, 0.0, factor_of_safety(m_r, overturning_moment_knm_m))
+
+
 def sliding_fos(
-    vertical_kn_m: ArrayLike, horizontal_kn_m: ArrayLike, base_friction_deg: ArrayLike
+    vertical_kn_m: ArrayLike,
+    horizontal_kn_m: ArrayLike,
+    base_friction_deg: ArrayLike,
+    passive_kn_m: ArrayLike = 0.0,
 ) -> FloatArray:
-    r"""Factor of safety against sliding V·tan δ_b / ΣH, no passive resistance, no adhesion.
+    r"""Factor of safety against sliding (V·tan δ_b + P_p) / ΣH, no adhesion.
+
+    ``passive_kn_m`` P_p is the passive resistance in front relied on (0: ignored).
 
     References
     ----------
@@ -123,7 +144,7 @@ def sliding_fos(
     friction values after NAVFAC DM 7.02 (1986) Table 1.
     """
     v = np.clip(np.asarray(vertical_kn_m, dtype=float), 0.0, None)
-    return factor_of_safety(v * np.tan(np.radians(base_friction_deg)), horizontal_kn_m)
+    return factor_of_safety(v * np.tan(np.radians(base_friction_deg)) + passive_kn_m, horizontal_kn_m)
 
 
 def middle_third_utilisation(eccentricity_m: ArrayLike, base_width_m: ArrayLike) -> FloatArray:
@@ -131,7 +152,7 @@ def middle_third_utilisation(eccentricity_m: ArrayLike, base_width_m: ArrayLike)
     return np.abs(np.asarray(eccentricity_m, dtype=float)) / (np.asarray(base_width_m, dtype=float) / 6.0)
 
 
-def fos_utilisation(fos: ArrayLike, required: float) -> FloatArray:
+def fos_utilisation(fos: ArrayLike, required: ArrayLike) -> FloatArray:
     """Required over provided factor of safety: 0 for an infinite factor, inf for zero."""
     f = np.asarray(fos, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
