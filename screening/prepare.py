@@ -71,11 +71,12 @@ class _Log:
         self,
         mask: pd.Series,
         column: str,
-        message: str,
+        message: str | pd.Series,
         *,
         severity: str = "error",
         values: pd.Series | None = None,
     ) -> None:
+        """Log the cells of ``column`` where ``mask`` holds; ``message`` may differ per row."""
         mask = mask.fillna(False).astype(bool)
         if severity == "warning" and column in self.flagged:
             mask &= ~self.flagged[column]  # a cell already in error needs no warning too
@@ -99,7 +100,7 @@ class _Log:
                     "column": self.labels.get(column, column),
                     "value": shown.map(_show).to_numpy(),
                     "severity": severity,
-                    "message": message,
+                    "message": message.loc[mask].to_numpy() if isinstance(message, pd.Series) else message,
                 }
             )
         )
@@ -200,20 +201,47 @@ def _range(
     log.problem(bad & v.notna(), col, expected, severity=severity)
 
 
+def _m(values: pd.Series) -> pd.Series:
+    """Lengths as the messages show them: metres to the centimetre, trailing zeros dropped."""
+    return values.map(lambda v: f"{v:.2f}".rstrip("0").rstrip(".") if pd.notna(v) else "blank")
+
+
+def _words(*parts: str | pd.Series) -> pd.Series:
+    """A message per row, joined from fixed words and per-row values."""
+    series = [p for p in parts if isinstance(p, pd.Series)]
+    out = pd.Series("", index=series[0].index, dtype=object)
+    for part in parts:
+        out = out + (part.astype(str) if isinstance(part, pd.Series) else part)
+    return out
+
+
+def _check_duplicates(w: pd.DataFrame, log: _Log) -> None:
+    """A wall id twice in one survey: the message names the row where it first stands."""
+    key = ["wall_id", "survey_date"]
+    dup = w["wall_id"].notna() & w.duplicated(key, keep="first")
+    if not dup.any():
+        return
+    first_row = w.groupby(key, dropna=False, sort=False)["row"].transform("first")
+    message = "wall_id must be unique within one survey date: also on row " + first_row.astype(str)
+    log.problem(dup, "wall_id", message)
+
+
 def validate(w: pd.DataFrame, config: Config, log: _Log) -> None:
     """Required values, ranges and physical consistency, whole columns at a time."""
     for col in schema.REQUIRED:
         already = log.flagged.get(col, pd.Series(False, index=w.index))
         log.problem(w[col].isna() & ~already, col, "a value is required")
-    dup = w["wall_id"].notna() & w.duplicated(["wall_id", "survey_date"], keep="first")
-    log.problem(dup, "wall_id", "wall_id must be unique within one survey date")
+    _check_duplicates(w, log)
 
-    _range(
-        log,
-        w,
+    height = w["height_m"]
+    log.problem(
+        height.notna() & (height <= 0),
         "height_m",
-        0.3,
-        None,
+        "expected a height above 0 m",
+    )
+    log.problem(
+        (height > 0) & (height < 0.3),
+        "height_m",
         "expected a height of at least 0.3 m (metres entered where millimetres are expected?)",
     )
     _range(
@@ -317,7 +345,7 @@ def _fill_wall(w: pd.DataFrame, config: Config, log: _Log) -> None:
         blank,
         "retained_height_m",
         w["height_m"],
-        "not recorded: retained to the full height (shared/inventory.md)",
+        "not recorded: retained to the full height of the wall",
     )
     w["retained_height_m"] = w["retained_height_m"].fillna(w["height_m"])
     for col in ("front_batter_m", "lean_deg", "joint_friction_deg"):
@@ -407,23 +435,43 @@ def check_geometry(w: pd.DataFrame, log: _Log) -> None:
     log.problem(
         back < -1e-9,
         "base_width_m",
-        "base narrower than top width plus front batter: the back face would overhang the heel (b < 0)",
+        _words(
+            "base ",
+            _m(w["base_width_m"]),
+            " m narrower than top width ",
+            _m(w["top_width_m"]),
+            " m plus front batter ",
+            _m(w["front_batter_m"]),
+            " m: the back face would overhang the heel (b < 0)",
+        ),
     )
     log.problem(
         w["retained_height_m"] > w["height_m"] + 1e-9,
         "retained_height_m",
-        "retained height above the wall height",
+        _words(
+            "retained height ",
+            _m(w["retained_height_m"]),
+            " m above the wall height ",
+            _m(w["height_m"]),
+            " m",
+        ),
     )
     log.problem(
         w["water_height_m"] > w["retained_height_m"] + 1e-9,
         "water_height_m",
-        "water height above the retained height",
+        _words(
+            "water height ",
+            _m(w["water_height_m"]),
+            " m above the retained height ",
+            _m(w["retained_height_m"]),
+            " m",
+        ),
     )
     crack = w["crack_height_m"]
     log.problem(
         crack.notna() & ((crack <= 0) | (crack >= w["height_m"])),
         "crack_height_m",
-        "expected a crack height above 0 and below the wall height",
+        _words("expected a crack height above 0 and below the wall height ", _m(w["height_m"]), " m"),
     )
     log.problem(
         w["backfill_slope_deg"] >= w["soil_friction_deg"],

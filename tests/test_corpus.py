@@ -32,7 +32,7 @@ CASES = [
     ("password_protected.xlsx", NONE, "password-protected", None),
     ("text_in_numeric.csv", SOME, "expected a number", (5, "height_m")),
     ("blank_required.csv", SOME, "a value is required", (5, "base_width_m")),
-    ("negative_height.csv", SOME, "at least 0.3 m", (5, "height_m")),
+    ("negative_height.csv", SOME, "expected a height above 0 m", (5, "height_m")),
     ("top_wider_than_base.csv", SOME, "overhang the heel", (5, "base_width_m")),
     ("slope_steeper_than_friction.csv", SOME, "less than the soil friction", (5, "backfill_slope_deg")),
     ("crack_above_top.csv", SOME, "below the wall height", (5, "crack_height_m")),

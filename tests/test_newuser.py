@@ -129,3 +129,37 @@ def test_explain_names_ids_that_differ_only_by_case(tmp_path: Path) -> None:
     result = runner.invoke(app, ["explain", str(reg2), "AB", "--out", str(tmp_path / "o2")])
     assert result.exit_code == EXIT_NOTHING_SCREENED
     assert "Ab" in result.output and "aB" in result.output and "differ only by case" in result.output
+
+
+def _problems(rows: list[dict]) -> pd.DataFrame:
+    from screening import evaluate
+
+    return evaluate(pd.DataFrame(rows)).problems
+
+
+def test_messages_carry_the_numbers_needed_to_fix_the_row() -> None:
+    problems = _problems([worked_wall("A", 2.0, height_m=3.1, retained_height_m=3.4)])
+    message = problems.loc[problems["column"] == "retained_height_m", "message"].iloc[0]
+    assert "retained height 3.4 m above the wall height 3.1 m" in message
+
+
+def test_duplicate_id_message_names_the_first_row() -> None:
+    problems = _problems([worked_wall("A", 2.0), worked_wall("B", 2.0), worked_wall("A", 1.5)])
+    dup = problems[problems["column"] == "wall_id"]
+    assert list(dup["row"]) == [4]
+    assert "also on row 2" in dup["message"].iloc[0]
+
+
+def test_a_zero_height_does_not_suggest_millimetres() -> None:
+    problems = _problems([worked_wall("Z", 2.0, height_m=0.0), worked_wall("S", 2.0, height_m=0.004)])
+    by_wall = problems.set_index("wall_id")["message"]
+    assert "millimetres" not in by_wall["Z"] and "above 0 m" in by_wall["Z"]
+    assert "millimetres" in by_wall["S"]
+
+
+def test_nothing_user_facing_names_a_development_file() -> None:
+    from screening import evaluate
+
+    run = evaluate(pd.DataFrame([{"wall_id": "A", "height_m": 3.0, "base_width_m": 2.0, "top_width_m": 0.6}]))
+    for text in run.prepared.assumptions["source"].astype(str):
+        assert "shared/" not in text and ".md" not in text, text
