@@ -337,7 +337,7 @@ def _fill_wall(w: pd.DataFrame, config: Config, log: _Log) -> None:
         w["material"].isna() & ~material_blank & checked,
         "material",
         config.material_default,
-        "config material_default: not recorded; decides the bed-joint check (method.md §8)",
+        "config material_default: not recorded; decides whether the bed joints are checked",
     )
     w["joint_check"] = checked.astype(float)
     blank = w["retained_height_m"].isna()

@@ -160,6 +160,10 @@ def test_a_zero_height_does_not_suggest_millimetres() -> None:
 def test_nothing_user_facing_names_a_development_file() -> None:
     from screening import evaluate
 
-    run = evaluate(pd.DataFrame([{"wall_id": "A", "height_m": 3.0, "base_width_m": 2.0, "top_width_m": 0.6}]))
+    walls = [
+        {"wall_id": "A", "height_m": 3.0, "base_width_m": 2.0, "top_width_m": 0.6},
+        {"wall_id": "B", "height_m": 3.0, "base_width_m": 2.0, "top_width_m": 0.6, "wall_unit_weight_kn_m3": 21.0},
+    ]
+    run = evaluate(pd.DataFrame(walls))
     for text in run.prepared.assumptions["source"].astype(str):
         assert "shared/" not in text and ".md" not in text, text
