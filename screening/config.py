@@ -9,6 +9,8 @@ variant from TOML with :func:`load_config`.
 from __future__ import annotations
 
 import dataclasses
+import difflib
+import math
 import tomllib
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -229,6 +231,114 @@ class Config:
         return {f.name: plain(getattr(self, f.name)) for f in dataclasses.fields(self)}
 
 
+@dataclass(frozen=True)
+class Rule:
+    """A range a numeric setting must lie in (every number must also be finite)."""
+
+    lo: float | None
+    hi: float | None
+    expected: str
+    lo_open: bool = False
+
+    def holds(self, value: object) -> bool:
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+            return False
+        if self.lo is not None and (value <= self.lo if self.lo_open else value < self.lo):
+            return False
+        return self.hi is None or value <= self.hi
+
+
+_FACTOR = Rule(0, 100, "a finite factor above 0 and up to 100", lo_open=True)
+_UNIT_WEIGHT = Rule(10, 30, "a unit weight between 10 and 30 kN/m³ (as in the register)")
+_ANGLE_POS = Rule(0, 50, "an angle above 0° and up to 50°", lo_open=True)
+NUMBER_RULES: Mapping[str, Rule] = _frozen(
+    {
+        "fos_sliding_required": _FACTOR,
+        "fos_overturning_required": _FACTOR,
+        "fos_bearing_required": _FACTOR,
+        "gamma_w_kn_m3": Rule(9.0, 10.6, "the unit weight of water, 9.0 to 10.6 kN/m³ (fresh to sea water)"),
+        "drainage_water_fraction": Rule(0, 1, "a fraction of the retained height from 0 to 1"),
+        "wall_unit_weight_kn_m3": _UNIT_WEIGHT,
+        "soil_unit_weight_kn_m3": _UNIT_WEIGHT,
+        "soil_saturated_unit_weight_kn_m3": Rule(
+            9.81, 30, "a saturated unit weight above that of water (9.81) and up to 30 kN/m³", lo_open=True
+        ),
+        "soil_friction_deg": _ANGLE_POS,
+        "wall_friction_deg": Rule(0, 45, "an angle between 0° and 45°"),
+        "backfill_slope_deg": Rule(-45, 45, "a slope between -45° and 45°"),
+        "surcharge_kpa": Rule(0, 500, "a surcharge between 0 and 500 kPa"),
+        "joint_friction_deg": _ANGLE_POS,
+        "lean_deg": Rule(-30, 30, "a lean between -30° and 30°"),
+        "front_batter_m": Rule(0, 10, "a front batter from 0 to 10 m"),
+        "joint_planes": Rule(0, 1000, "a whole number from 0 (off) to 1000"),
+        "foundation_cohesion_kpa": Rule(0, 500, "an effective cohesion between 0 and 500 kPa"),
+        "foundation_unit_weight_kn_m3": _UNIT_WEIGHT,
+        "embedment_m": Rule(0, 25, "an embedment of 0 m or more (up to 25 m)"),
+        "passive_mobilisation": Rule(0, 1, "a share from 0 to 1"),
+        "toe_excavation_m": Rule(0, 25, "a depth of 0 m or more (up to 25 m)"),
+        "foundation_allowable_bearing_kpa": Rule(0, 1e5, "an allowable bearing pressure above 0 kPa", True),
+        "foundation_base_friction_deg": _ANGLE_POS,
+        "consequence_weight": Rule(0, 1e6, "a weight above 0", lo_open=True),
+        "lean_rate_threshold_deg_per_year": Rule(0, 90, "a rate above 0°/yr", lo_open=True),
+        "condition_default": Rule(1, 5, "a condition rating from 1 to 5"),
+        "workbook_full_results_limit": Rule(0, 1_048_000, "a whole number of walls from 0 to 1,048,000"),
+        "chunk_size": Rule(1, 10_000_000, "a whole number of walls from 1 to 10,000,000"),
+        "priority.weight_structural": Rule(0, 10, "a weight from 0 to 10"),
+        "priority.weight_condition": Rule(0, 10, "a weight from 0 to 10"),
+        "priority.weight_lean": Rule(0, 10, "a weight from 0 to 10"),
+        "priority.weight_crack": Rule(0, 10, "a weight from 0 to 10"),
+        "priority.weight_lean_rate": Rule(0, 10, "a weight from 0 to 10"),
+        "priority.weight_surveyed_case": Rule(0, 1, "a share from 0 to 1"),
+        "priority.utilisation_scale": Rule(0, 100, "a scale above 0", lo_open=True),
+        "priority.lean_full_deg": Rule(0, 90, "an angle above 0°", lo_open=True),
+        "priority.lean_rate_full_deg_per_year": Rule(0, 90, "a rate above 0°/yr", lo_open=True),
+        "priority.height_full_m": Rule(0, 100, "a height above 0 m", lo_open=True),
+        "priority.band_thresholds": Rule(0, 100, "a score from 0 to 100"),
+    }
+)
+"""Every numeric setting and the range it must lie in; NaN and infinity are always refused."""
+
+
+def class_rules(c: Config) -> dict[str, tuple[Any, tuple[str, ...], bool]]:
+    """Settings that name classes: setting -> (the names given, the classes, whether all are needed).
+
+    A table keyed by class needs every class (a missing key would leave a NaN default);
+    a single name or a list needs only known classes.
+    """
+    consequences = tuple(c.consequence_weight)
+    return {
+        "material_default": ([c.material_default], MATERIALS, False),
+        "foundation_default": ([c.foundation_default], FOUNDATIONS, False),
+        "consequence_default": ([c.consequence_default], consequences, False),
+        "joint_check_materials": (list(c.joint_check_materials), MATERIALS, False),
+        "wall_unit_weight_kn_m3": (list(c.wall_unit_weight_kn_m3), MATERIALS, True),
+        "drainage_water_fraction": (list(c.drainage_water_fraction), DRAINAGE_STATES, True),
+        "foundation_allowable_bearing_kpa": (list(c.foundation_allowable_bearing_kpa), FOUNDATIONS, True),
+        "foundation_base_friction_deg": (list(c.foundation_base_friction_deg), FOUNDATIONS, True),
+        "priority.band_thresholds": (
+            list(c.priority.band_thresholds),
+            ("inspect_first", "inspect_soon", "routine"),
+            True,
+        ),
+    }
+
+
+def _suggestion(name: object, options: tuple[str, ...] | list[str]) -> str:
+    close = difflib.get_close_matches(str(name), list(options), n=1, cutoff=0.6)
+    return f" (did you mean {close[0]!r}?)" if close else ""
+
+
+def _numbers_of(c: Config, name: str) -> list[tuple[str, object]]:
+    """(label, value) of every number a rule applies to: a Default's value, each item of a table."""
+    head, _, tail = name.partition(".")
+    value = getattr(c.priority, tail) if head == "priority" else getattr(c, name)
+    if isinstance(value, Default):
+        return [(name, value.value)]
+    if isinstance(value, Mapping):
+        return [(f"{name}.{k}", v.value if isinstance(v, Default) else v) for k, v in value.items()]
+    return [(name, value)]
+
+
 def _validate(c: Config) -> None:
     """Reject settings that cannot be right, naming the setting, the value and what is expected."""
 
@@ -236,32 +346,29 @@ def _validate(c: Config) -> None:
         if not ok:
             raise ConfigError(f"setting {name} = {value!r}: expected {expected}")
 
-    for name in ("fos_sliding_required", "fos_overturning_required", "fos_bearing_required"):
+    for name, (given, classes, complete) in class_rules(c).items():
+        for g in given:
+            need(g in classes, name, g, f"one of {', '.join(classes)}{_suggestion(g, classes)}")
+        missing = [k for k in classes if k not in given] if complete else []
+        need(not missing, name, given, f"a value for every class: {', '.join(missing)} missing")
+    for name, rule in NUMBER_RULES.items():
+        for label, value in _numbers_of(c, name):
+            need(rule.holds(value), label, value, rule.expected + " (a finite number)")
+    for name in ("joint_planes", "workbook_full_results_limit", "chunk_size"):
         value = getattr(c, name)
-        need(value > 0, name, value, "a factor above 0")
-    need(
-        isinstance(c.joint_planes, int) and 0 <= c.joint_planes <= 1000,
-        "joint_planes",
-        c.joint_planes,
-        "a whole number from 0 (off) to 1000",
-    )
-    unknown = [m for m in c.joint_check_materials if m not in MATERIALS]
-    need(not unknown, "joint_check_materials", list(c.joint_check_materials), f"materials from {MATERIALS}")
-    need(
-        0 <= c.passive_mobilisation <= 1,
-        "passive_mobilisation",
-        c.passive_mobilisation,
-        "a share from 0 to 1",
-    )
-    need(c.toe_excavation_m >= 0, "toe_excavation_m", c.toe_excavation_m, "a depth of 0 m or more")
+        need(isinstance(value, int) and not isinstance(value, bool), name, value, "a whole number")
+    _validate_criteria(c, need)
+
+
+def _validate_criteria(c: Config, need: Any) -> None:
     for case, crit in c.criteria.items():
         need(case in CASES, "criteria", case, f"a table per case, named from {CASES}")
         for key in ("fos_sliding_required", "fos_overturning_required"):
             value = getattr(crit, key)
-            need(value is None or value > 0, f"criteria.{case}.{key}", value, "a factor above 0")
+            need(value is None or _FACTOR.holds(value), f"criteria.{case}.{key}", value, "a factor above 0")
         limit = crit.resultant_limit
         need(
-            limit is None or 0 < limit <= 1,
+            limit is None or Rule(0, 1, "", lo_open=True).holds(limit),
             f"criteria.{case}.resultant_limit",
             limit,
             "a fraction of B/2 above 0 and up to 1 "
@@ -310,69 +417,123 @@ def load_config(path: str | Path | None) -> Config:
     if path is None:
         return base
     path = Path(path)
-    try:
-        data = tomllib.loads(path.read_text(encoding="utf-8"))
-    except (OSError, tomllib.TOMLDecodeError) as exc:
-        raise ConfigError(f"cannot read the config file {path}: {exc}") from exc
+    data = read_toml(path, "config file", ConfigError)
     known = {f.name: f for f in dataclasses.fields(base)}
     changes: dict[str, Any] = {}
     for key, value in data.items():
         if key not in known:
             raise ConfigError(
-                f"{path}: unknown setting {key!r}; known settings are {', '.join(sorted(known))}"
+                f"{path}: unknown setting {key!r}{_suggestion(key, sorted(known))}; "
+                f"known settings are {', '.join(sorted(known))}"
             )
-        current = getattr(base, key)
-        if key == "criteria":
-            try:
-                changes["criteria"], source = _criteria(value)
-            except ConfigError as exc:
-                raise ConfigError(f"{path}: {exc}") from exc
-            changes.setdefault("criteria_source", source)
-        elif key == "joint_check_materials":
-            if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
-                raise ConfigError(f'{path}: setting {key!r} must be a list of materials, e.g. ["drystone"]')
-            changes[key] = tuple(value)
-        elif isinstance(current, PrioritySettings):
-            if not isinstance(value, Mapping):
-                raise ConfigError(f"{path}: setting {key!r} must be a table")
-            names = {f.name for f in dataclasses.fields(current)}
-            unknown = set(value) - names
-            if unknown:
-                raise ConfigError(f"{path}: unknown [priority] setting(s) {sorted(unknown)}")
-            sub: dict[str, Any] = {
-                k: (_frozen({**current.band_thresholds, **v}) if k == "band_thresholds" else float(v))
-                for k, v in value.items()
-            }
-            changes[key] = dataclasses.replace(current, **sub)
-        elif isinstance(current, Default):
-            if isinstance(value, Mapping):
-                changes[key] = Default(float(value["value"]), str(value.get("source", path.name)))
-            else:
-                changes[key] = Default(float(value), f"set in {path.name}")
-        elif isinstance(current, Mapping):
-            if not isinstance(value, Mapping):
-                raise ConfigError(f"{path}: setting {key!r} must be a table")
-            merged = dict(current)
-            for k, v in value.items():
-                old = merged.get(k)
-                if isinstance(old, Default):
-                    merged[k] = Default(float(v), f"set in {path.name}")
-                else:
-                    merged[k] = float(v)
-            changes[key] = _frozen(merged)
-        elif isinstance(current, bool):
-            if not isinstance(value, bool):
-                raise ConfigError(f"{path}: setting {key!r} must be true or false")
-            changes[key] = value
-        elif isinstance(current, (int, float)):
-            if isinstance(value, bool) or not isinstance(value, (int, float)):
-                raise ConfigError(f"{path}: setting {key!r} must be a number, got {value!r}")
-            if isinstance(current, int) and not float(value).is_integer():
-                raise ConfigError(f"{path}: setting {key!r} must be a whole number, got {value!r}")
-            changes[key] = type(current)(value)
-        else:
-            changes[key] = str(value)
+        _change(path, base, key, value, changes)
     try:
         return dataclasses.replace(base, **changes)
     except ConfigError as exc:
         raise ConfigError(f"{path}: {exc}") from exc
+
+
+def read_toml(path: Path, what: str, error: type[Exception]) -> dict[str, Any]:
+    """A TOML file as a dict; an unreadable, non-UTF-8 or malformed file is one clear error."""
+    try:
+        data = path.read_bytes()
+    except OSError as exc:
+        raise error(f"cannot read the {what} {path}: {exc.strerror or exc}") from exc
+    try:
+        text = data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise error(
+            f"{path}: the {what} is not UTF-8 text (byte 0x{data[exc.start]:02x} at offset {exc.start}); "
+            "save it as UTF-8"
+        ) from exc
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise error(f"{path}: the {what} is not valid TOML: {exc}") from exc
+
+
+def _number(path: Path, key: str, value: object) -> float:
+    """A TOML number as float; text, true/false or a table is a clear error naming the key."""
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise ConfigError(f"{path}: setting {key} = {value!r}: expected a number")
+    return float(value)
+
+
+def _table(
+    path: Path, key: str, current: Mapping[str, Any], value: Any, open_keys: bool
+) -> Mapping[str, Any]:
+    """Merge a TOML table onto a table setting key by key; unknown keys only where classes are open."""
+    if not isinstance(value, Mapping):
+        raise ConfigError(f"{path}: setting {key!r} must be a table")
+    merged = dict(current)
+    for k, v in value.items():
+        if k not in merged and not open_keys:
+            raise ConfigError(
+                f"{path}: setting {key}: unknown key {k!r}{_suggestion(k, list(current))}; "
+                f"known keys are {', '.join(current)}"
+            )
+        old = merged.get(k)
+        if isinstance(old, Default):
+            merged[k] = Default(_number(path, f"{key}.{k}", v), f"set in {path.name}")
+        else:
+            merged[k] = _number(path, f"{key}.{k}", v)
+    return _frozen(merged)
+
+
+def _change(path: Path, base: Config, key: str, value: Any, changes: dict[str, Any]) -> None:
+    """Turn one TOML setting into the value of the Config field ``key`` (into ``changes``)."""
+    current = getattr(base, key)
+    if key == "criteria":
+        try:
+            changes["criteria"], source = _criteria(value)
+        except ConfigError as exc:
+            raise ConfigError(f"{path}: {exc}") from exc
+        changes.setdefault("criteria_source", source)
+    elif key == "joint_check_materials":
+        if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
+            raise ConfigError(f'{path}: setting {key!r} must be a list of materials, e.g. ["drystone"]')
+        changes[key] = tuple(value)
+    elif isinstance(current, PrioritySettings):
+        changes[key] = _priority(path, current, value)
+    elif isinstance(current, Default):
+        if isinstance(value, Mapping):
+            if "value" not in value:
+                raise ConfigError(f"{path}: setting {key}: a table needs value (and source)")
+            changes[key] = Default(_number(path, key, value["value"]), str(value.get("source", path.name)))
+        else:
+            changes[key] = Default(_number(path, key, value), f"set in {path.name}")
+    elif isinstance(current, Mapping):
+        # consequence classes are the owner's own; every other table is keyed by fixed classes
+        changes[key] = _table(path, key, current, value, open_keys=key == "consequence_weight")
+    elif isinstance(current, bool):
+        if not isinstance(value, bool):
+            raise ConfigError(f"{path}: setting {key!r} must be true or false")
+        changes[key] = value
+    elif isinstance(current, (int, float)):
+        number = _number(path, key, value)
+        if isinstance(current, int) and not number.is_integer():
+            raise ConfigError(f"{path}: setting {key!r} must be a whole number, got {value!r}")
+        changes[key] = type(current)(number)
+    elif not isinstance(value, str):
+        raise ConfigError(f"{path}: setting {key} = {value!r}: expected text")
+    else:
+        changes[key] = value
+
+
+def _priority(path: Path, current: PrioritySettings, value: Any) -> PrioritySettings:
+    """The [priority] table: known keys only, numbers only, band thresholds merged."""
+    if not isinstance(value, Mapping):
+        raise ConfigError(f"{path}: setting 'priority' must be a table")
+    names = [f.name for f in dataclasses.fields(current)]
+    for k in value:
+        if k not in names:
+            raise ConfigError(f"{path}: unknown [priority] setting {k!r}{_suggestion(k, names)}")
+    sub: dict[str, Any] = {
+        k: (
+            _table(path, "priority.band_thresholds", current.band_thresholds, v, open_keys=False)
+            if k == "band_thresholds"
+            else _number(path, f"priority.{k}", v)
+        )
+        for k, v in value.items()
+    }
+    return dataclasses.replace(current, **sub)

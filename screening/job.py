@@ -140,6 +140,7 @@ def screen_file(
         sheet=loaded.raw.sheet,
         notes=list(loaded.raw.notes),
     )
+    refuse_unreported_nan(run)
     accepted = run.prepared.walls
     geometry, geo_problems = locate(accepted, loaded.mapping.crs or loaded.raw.crs)
     header_problems = pd.DataFrame(
@@ -169,6 +170,35 @@ def screen_file(
         geometry = geometry[order]
         walls["located"] = np.array([g is not None for g in geometry], dtype=bool)
     return JobResult(run, loaded, info, walls, geometry, history=Path(history) if history else None)
+
+
+NEVER_NAN = (
+    "middle_third_utilisation",
+    "sliding_utilisation",
+    "overturning_utilisation",
+    "bearing_utilisation",
+    "utilisation",
+)
+"""Result columns that every screened wall has in every case (crack and joint columns may be blank)."""
+
+
+def refuse_unreported_nan(run: Screening) -> None:
+    """No NaN may reach a utilisation or a score unnoticed: name the walls and stop the run."""
+    from screening.errors import ScreeningError
+
+    results, walls = run.results, run.walls
+    bad: dict[str, list[str]] = {}
+    for col in NEVER_NAN:
+        if col in results:
+            hit = results.loc[results[col].isna(), "wall_id"].astype(str)
+            if len(hit):
+                bad[col] = list(dict.fromkeys(hit))
+    for col in ("utilisation", "priority_score"):
+        if col in walls and walls[col].isna().any():
+            bad[f"walls {col}"] = list(walls.loc[walls[col].isna(), "wall_id"].astype(str))
+    if bad:
+        where = "; ".join(f"{col}: {', '.join(ids[:5])}" for col, ids in bad.items())
+        raise ScreeningError(f"a result came out as NaN (not a number), which should not happen: {where}")
 
 
 def provenance(job: JobResult) -> list[tuple[str, object]]:

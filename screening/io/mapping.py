@@ -21,7 +21,6 @@ Headers equal to a canonical name (any case) need no entry.
 from __future__ import annotations
 
 import difflib
-import tomllib
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -30,6 +29,7 @@ import numpy as np
 import pandas as pd
 
 from screening import schema
+from screening.config import read_toml
 from screening.errors import RegisterError
 from screening.io.readers import RawRegister
 
@@ -78,10 +78,8 @@ def load_mapping(path: str | Path | None) -> ColumnMapping:
     if path is None:
         return ColumnMapping()
     path = Path(path)
-    try:
-        data = tomllib.loads(path.read_text(encoding="utf-8"))
-    except (OSError, tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-        raise RegisterError(f"cannot read the mapping file {path}: {exc}") from exc
+    data = read_toml(path, "mapping file", RegisterError)
+    check_mapping_keys(data, path)
     cols: list[ColumnMap] = []
     for header, spec in data.get("columns", {}).items():
         if isinstance(spec, str):
@@ -111,6 +109,47 @@ def load_mapping(path: str | Path | None) -> ColumnMapping:
         values[column] = {str(k).strip().lower(): str(v) for k, v in table.items()}
     reg = data.get("register", {})
     return ColumnMapping(tuple(cols), values, reg.get("sheet"), reg.get("crs"), path)
+
+
+SECTIONS = {"register": ("sheet", "crs", "layer"), "columns": None, "values": None}
+"""The mapping file's sections and, where fixed, their keys."""
+ENTRY_KEYS = ("column", "unit")
+
+
+def check_mapping_keys(data: Mapping[str, object], path: Path) -> None:
+    """Refuse unknown sections and keys, with a suggestion: a misspelt ``unit`` would be ignored."""
+    for section, table in data.items():
+        if section not in SECTIONS:
+            raise RegisterError(
+                f"{path}: unknown section [{section}]{_suggest(section, list(SECTIONS))}; "
+                f"the sections are {', '.join(f'[{k}]' for k in SECTIONS)}"
+            )
+        if not isinstance(table, Mapping):
+            raise RegisterError(f"{path}: [{section}] must be a table, got {table!r}")
+        keys = SECTIONS[section]
+        for key in table if keys else ():
+            if key not in keys:
+                raise RegisterError(
+                    f"{path}: [{section}] unknown key {key!r}{_suggest(key, keys)}; "
+                    f"known keys are {', '.join(keys)}"
+                )
+    for header, spec in dict(data.get("columns", {})).items():  # type: ignore[call-overload]
+        if isinstance(spec, str):
+            continue
+        if not isinstance(spec, Mapping):
+            raise RegisterError(
+                f"{path}: [columns] {header!r} = {spec!r}: expected a column name or "
+                '{ column = "...", unit = "..." }'
+            )
+        for key in spec:
+            if key not in ENTRY_KEYS:
+                raise RegisterError(
+                    f"{path}: [columns] {header!r}: unknown key {key!r}{_suggest(key, ENTRY_KEYS)}; "
+                    f"an entry takes {', '.join(ENTRY_KEYS)}"
+                )
+    for column, table in dict(data.get("values", {})).items():  # type: ignore[call-overload]
+        if not isinstance(table, Mapping):
+            raise RegisterError(f"{path}: [values.{column}] must be a table of code = value")
 
 
 def _units_for(column: str) -> tuple[str, ...]:

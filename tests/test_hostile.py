@@ -1,0 +1,133 @@
+"""Hostile and careless input (issue 17): each case is a file under tests/corpus/hostile/ (or one
+made here, where it must be made fresh), the command, the words expected, the exit code and the
+files; the input's SHA-256 is the same after every test."""
+
+from __future__ import annotations
+
+import hashlib
+from pathlib import Path
+
+import pytest
+from typer.testing import CliRunner
+
+from screening.cli import EXIT_NOTHING_SCREENED as NONE
+from screening.cli import app
+
+HOSTILE = Path(__file__).resolve().parent / "corpus" / "hostile"
+CORPUS = HOSTILE.parent
+runner = CliRunner()
+
+
+def digest(path: Path) -> str:
+    return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+def invoke(args: list[str], *inputs: Path):
+    """Run the CLI; no traceback, and every input file byte for byte as it was."""
+    before = {p: digest(p) for p in inputs}
+    result = runner.invoke(app, [str(a) for a in args])
+    assert "Traceback" not in result.output, result.output
+    assert result.exception is None or isinstance(result.exception, SystemExit), repr(result.exception)
+    assert {p: digest(p) for p in inputs} == before  # the input is never modified
+    return result
+
+
+def flat(result) -> str:
+    return " ".join(result.output.split())
+
+
+# --- 1. settings: classes named, numbers in range and finite ------------------------------------
+
+CONFIGS = [
+    ("consequence_raod.toml", "consequence_default = 'raod'", "did you mean 'road'?"),
+    ("foundation_firm_clay.toml", "foundation_default = 'firm clay'", "did you mean 'firm_clay'?"),
+    ("gamma_w_zero.toml", "gamma_w_kn_m3 = 0.0", "unit weight of water"),
+    ("drainage_fraction_5.toml", "drainage_water_fraction.partial = 5.0", "from 0 to 1"),
+    ("drainage_misspelt_state.toml", "unknown key 'blokced'", "did you mean 'blocked'?"),
+    ("fos_negative.toml", "fos_sliding_required = -1.5", "above 0"),
+    ("fos_nan.toml", "fos_overturning_required = nan", "finite"),
+    ("surcharge_inf.toml", "surcharge_kpa = inf", "finite"),
+    ("fos_as_text.toml", "fos_sliding_required = 'high'", "expected a number"),
+    ("unknown_setting.toml", "unknown setting 'allowable_bearing'", "known settings are"),
+    ("config_cp1252.toml", "not UTF-8", "byte 0xe9"),
+]
+
+
+@pytest.mark.parametrize(("name", "words", "hint"), CONFIGS, ids=[c[0] for c in CONFIGS])
+def test_a_bad_setting_is_named_with_file_key_value_and_expectation(name: str, words: str, hint: str) -> None:
+    config = HOSTILE / name
+    register = CORPUS / "good.csv"
+    result = invoke(["check", register, "-c", config], register, config)
+    assert result.exit_code == NONE, result.output
+    text = flat(result)
+    assert name in text  # the file
+    assert words in text and hint in text
+
+
+def test_a_class_name_in_a_default_no_longer_gives_nan_scores() -> None:
+    # before: consequence_default = "raod" was accepted and every wall with a blank consequence
+    # scored NaN, which fell to the lowest band
+    import dataclasses
+
+    from screening.config import Config
+    from screening.errors import ConfigError
+
+    with pytest.raises(ConfigError, match="consequence_default"):
+        dataclasses.replace(Config(), consequence_default="raod")
+    with pytest.raises(ConfigError, match="wall_unit_weight_kn_m3"):
+        dataclasses.replace(
+            Config(), wall_unit_weight_kn_m3={"drystone": Config().wall_unit_weight_kn_m3["drystone"]}
+        )
+
+
+def test_every_numeric_setting_has_a_rule() -> None:
+    # a new numeric setting without a range would slip through: the table must cover them all
+    import dataclasses
+
+    from screening.config import NUMBER_RULES, Config, Default
+    from screening.priority import PrioritySettings
+
+    numeric = {
+        f.name
+        for f in dataclasses.fields(Config)
+        if isinstance(getattr(Config(), f.name), (int, float, Default))
+        and not isinstance(getattr(Config(), f.name), bool)
+    }
+    numeric |= {
+        f"priority.{f.name}" for f in dataclasses.fields(PrioritySettings) if f.name != "band_thresholds"
+    }
+    assert numeric - set(NUMBER_RULES) == set()
+
+
+# --- 1. mapping files: unknown keys and sections refused ---------------------------------------
+
+MAPPINGS = [
+    ("mapping_misspelt_unit.toml", "unknown key 'unti'", "did you mean 'unit'?"),
+    ("mapping_unknown_section.toml", "unknown section [colums]", "did you mean 'columns'?"),
+    ("mapping_unknown_register_key.toml", "unknown key 'shet'", "did you mean 'sheet'?"),
+]
+
+
+@pytest.mark.parametrize(("name", "words", "hint"), MAPPINGS, ids=[m[0] for m in MAPPINGS])
+def test_a_misspelt_mapping_key_is_refused_not_ignored(name: str, words: str, hint: str) -> None:
+    # before: { column = "height_m", unti = "ft" } was read as 10 m, not 10 ft
+    mapping = HOSTILE / name
+    register = HOSTILE / "ten_feet.csv"
+    result = invoke(["check", register, "-m", mapping], register, mapping)
+    assert result.exit_code == NONE, result.output
+    text = flat(result)
+    assert name in text and words in text and hint in text
+
+
+def test_a_nan_utilisation_or_score_stops_the_run_naming_the_wall() -> None:
+    import dataclasses
+
+    from screening.errors import ScreeningError
+    from screening.job import refuse_unreported_nan, screen_file
+
+    run = screen_file(CORPUS / "good.csv").screening
+    refuse_unreported_nan(run)  # the good register passes
+    walls = run.walls.copy()
+    walls.loc[walls["wall_id"] == "GOOD-2", "priority_score"] = float("nan")
+    with pytest.raises(ScreeningError, match="priority_score: GOOD-2"):
+        refuse_unreported_nan(dataclasses.replace(run, walls=walls))
