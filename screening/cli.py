@@ -138,6 +138,7 @@ def _print_summary(job: JobResult, top: int = 10) -> None:
         console.print(
             "Priority bands: " + ", ".join(f"{BAND_LABELS[b]} {int(bands.get(b, 0))}" for b in BANDS)
         )
+        _print_data_gaps(walls)
         checks = walls["governing_check"].value_counts()
         console.print(
             "Governing check (worst case): "
@@ -168,6 +169,25 @@ def _print_summary(job: JobResult, top: int = 10) -> None:
     for name, path in job.outputs.items():
         console.print(f"  {name:<12} {path}")
     console.print(f"[dim]{CAUTION}[/]")
+
+
+def _print_data_gaps(walls: pd.DataFrame) -> None:
+    """Walls resting on suspect data, and drains not recorded counted apart from drains recorded
+    as blocked (both are screened as blocked; only one is an observation)."""
+    if "suspect_data" in walls:
+        n = int(walls["suspect_data"].fillna(False).astype(bool).sum())
+        if n:
+            rests = "rests" if n == 1 else "rest"
+            console.print(
+                f"{plural(n, 'wall')} {rests} on suspect data (a warning on an input of the mechanics: "
+                "see the reason and problems.csv)"
+            )
+    if "drainage_not_recorded" in walls:
+        gap = walls["drainage_not_recorded"].fillna(False).astype(bool)
+        blocked = int(((walls["drainage"].astype(str) == "blocked") & ~gap).sum())
+        console.print(
+            f"Drains: {blocked} recorded blocked, {int(gap.sum())} not recorded (screened as blocked)"
+        )
 
 
 def _print_changes(job: JobResult) -> None:

@@ -184,6 +184,9 @@ class Config:
     condition_default: Default = Default(3.0, "not recorded: middle of the 1-5 scale assumed")
     priority: PrioritySettings = field(default_factory=PrioritySettings)
     # --- outputs
+    resultant_near_toe_m: float = 0.020
+    """A resultant this close to the toe (0 < x_R < this) gives a correct but absurd toe pressure:
+    the outputs say "resultant within 20 mm of the toe" instead (results.csv keeps the number)."""
     workbook_full_results_limit: int = 1_000
     """Registers with more walls keep only this many walls, first in the ranking, on the
     workbook's per-case sheet (results.csv always has every wall)."""
@@ -254,6 +257,12 @@ def _validate(c: Config) -> None:
         "a share from 0 to 1",
     )
     need(c.toe_excavation_m >= 0, "toe_excavation_m", c.toe_excavation_m, "a depth of 0 m or more")
+    need(
+        0 <= c.resultant_near_toe_m <= 1,
+        "resultant_near_toe_m",
+        c.resultant_near_toe_m,
+        "a distance from 0 to 1 m (0 switches the words off)",
+    )
     for case, crit in c.criteria.items():
         need(case in CASES, "criteria", case, f"a table per case, named from {CASES}")
         for key in ("fos_sliding_required", "fos_overturning_required"):

@@ -262,6 +262,7 @@ def render_map(job: JobResult, out_dir: Path, options: MapOptions | None = None)
         job.sheets,
         job.map_layers,
         options,
+        job.info.config.resultant_near_toe_m,
     )
 
 
@@ -274,6 +275,7 @@ def _write_map(
     sheets: dict[str, str],
     layers: dict[str, dict[str, str]],
     options: MapOptions | None,
+    near_toe_m: float = Config().resultant_near_toe_m,
 ) -> Path:
     """The map of a run, titled from its provenance (the keys of :func:`provenance`)."""
     from screening.outputs.webmap import build_map, write_map
@@ -292,6 +294,7 @@ def _write_map(
         assets_dir=options.assets_dir,
         tiles=options.tiles,
         extra_layers=layers,
+        near_toe_m=near_toe_m,
     )
     return write_map(page, folder / "map.html")
 
@@ -339,6 +342,7 @@ def write_outputs(
         provenance=provenance(job),
         changes=job.changes,
         full_results_limit=job.info.config.workbook_full_results_limit,
+        near_toe_m=job.info.config.resultant_near_toe_m,
     )
     step("GeoPackage")
     outputs["geopackage"] = write_geopackage(job.walls, job.geometry, out / "walls.gpkg")
