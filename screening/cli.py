@@ -165,10 +165,27 @@ def _print_summary(job: JobResult, top: int = 10) -> None:
                 escape(str(w.reason)),
             )
         console.print(table)
+    _print_carried(job)
     _print_changes(job)
     for name, path in job.outputs.items():
         console.print(f"  {name:<12} {path}")
     console.print(f"[dim]{CAUTION}[/]")
+
+
+def _print_carried(job: JobResult, limit: int = 10) -> None:
+    """Walls of the last run whose row was rejected this time: on no other list of this run."""
+    from screening.history import carried_walls
+
+    carried = carried_walls(job.changes)
+    if not len(carried):
+        return
+    console.print(
+        f"[bold]Not re-screened this run[/] ({plural(len(carried), 'wall')} of the last run, rows rejected):"
+    )
+    for r in carried.head(limit).itertuples(index=False):
+        console.print(f"  {escape(str(r.wall_id)):<10} {escape(str(r.carried))}")
+    if len(carried) > limit:
+        console.print(f"  … {len(carried) - limit} more in changes.csv")
 
 
 def _print_data_gaps(walls: pd.DataFrame) -> None:

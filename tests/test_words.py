@@ -194,3 +194,36 @@ def test_the_toe_threshold_is_a_setting(tmp_path: Path) -> None:
     folder, _ = _run(tmp_path, [_near_toe_wall()], "--config", str(cfg))
     reason = pd.read_csv(folder / "walls.csv")["reason"].iloc[0]
     assert "mm of the toe" not in reason and "toe pressure exceeds the allowable" in reason
+
+
+# ------------------------------------------------------------ a wall whose row is rejected this time
+
+
+def test_a_wall_rejected_this_time_is_carried_with_its_previous_band(tmp_path: Path) -> None:
+    history = tmp_path / "history.gpkg"
+    bad = worked_wall("BAD", 1.0, condition_rating=5, consequence="railway")  # ranks first
+    first = [bad, worked_wall("OK", 2.0)]
+    reg1 = _csv(tmp_path, first, name="first.csv")
+    result = runner.invoke(app, ["run", str(reg1), "--out", str(tmp_path / "o1"), "--history", str(history)])
+    assert result.exit_code == 0, result.output
+    before = pd.read_csv(tmp_path / "o1" / "walls.csv").set_index("wall_id")
+    band = {"inspect_first": "Inspect first", "inspect_soon": "Inspect soon"}[before.at["BAD", "priority_band"]]
+    # the next survey: a typo puts the height in millimetres' place (4 for 4 m would be 0.004)
+    reg2 = _csv(tmp_path, [dict(bad, height_m=0.004), worked_wall("OK", 2.0)], name="second.csv")
+    out = tmp_path / "o2"
+    result = runner.invoke(app, ["run", str(reg2), "--out", str(out), "--history", str(history)])
+    assert result.exit_code == 1, result.output  # rows rejected
+    said = re.sub(r"\s+", " ", result.output)
+    assert "Not re-screened this run (1 wall" in said
+    assert "BAD not re-screened: height_m 0.004" in said and f"was {band}, rank 1 in the last run" in said
+    changes = pd.read_csv(out / "changes.csv").set_index("wall_id")
+    assert changes.at["BAD", "status"] == "rejected"
+    assert changes.at["BAD", "not_rescreened_because"].startswith("not re-screened: height_m 0.004 (")
+    rows = _sheet_rows(out / "report.xlsx", "Look first")
+    text = [" ".join(str(c) for c in r if c is not None) for r in rows]
+    head = next(i for i, t in enumerate(text) if t.startswith("Not re-screened this run (1)"))
+    assert "BAD" in text[head + 1] and f"was {band}, rank 1 in the last run" in text[head + 1]
+    assert "height_m 0.004" in text[head + 1]
+    page = (out / "map.html").read_text(encoding="utf-8")
+    assert "Not re-screened this run (1)" in page
+    assert "BAD: not re-screened: height_m 0.004" in page

@@ -264,6 +264,7 @@ def build_map(
     tiles: str | None = None,
     extra_layers: dict[str, Any] | None = None,
     near_toe_m: float = 0.0,
+    carried: list[str] | None = None,
 ) -> MapPage:
     """The folium map of a run (see the module docstring).
 
@@ -288,7 +289,8 @@ def build_map(
     root: Any = m.get_root()
     root.header.add_child(folium.Element(f"<style>\n{page_file('webmap.css')}</style>"))
     unlocated = int((~walls["located"].astype(bool)).sum())
-    root.html.add_child(folium.Element(_info_box(title, subtitle, drawn=n, unlocated=unlocated)))
+    box = _info_box(title, subtitle, drawn=n, unlocated=unlocated)
+    root.html.add_child(folium.Element(_with_carried(box, carried or [])))
     settings = _settings(bounds, extra_layers or {}, canvas=n > CANVAS_FROM)
     config = {"map": m.get_name(), "data": data, "settings": settings}
     return MapPage(m, _script_json(config))
@@ -350,6 +352,21 @@ def _info_box(title: str, subtitle: str, *, drawn: int, unlocated: int) -> str:
         f'<div class="ws-sub">{drawn} walls drawn{missing}'
         f'</div><div class="ws-caution">{html.escape(CAUTION)}</div></div>'
     )
+
+
+def _with_carried(box: str, carried: list[str], shown: int = 10) -> str:
+    """The info box with the walls of the last run not re-screened this time (rows rejected),
+    each with its band then and why: they are on no other list of this run."""
+    if not carried:
+        return box
+    items = "".join(f"<li>{html.escape(line)}</li>" for line in carried[:shown])
+    more = f"<li>… {len(carried) - shown} more in changes.csv</li>" if len(carried) > shown else ""
+    block = (
+        f'<div class="ws-carried"><b>Not re-screened this run ({len(carried)}): rows rejected, '
+        f"carried from the last run</b><ul>{items}{more}</ul></div>"
+    )
+    head, sep, tail = box.rpartition('<div class="ws-caution">')
+    return f"{head}{block}{sep}{tail}"
 
 
 def _settings(bounds: list[list[float]], extra_layers: dict[str, Any], *, canvas: bool) -> dict[str, Any]:

@@ -94,6 +94,7 @@ CHANGE_COLUMNS: Sequence[tuple[str, str, str]] = (
     ("priority_band_after", "Band after", "word"),
     ("rank_before", "Rank before", "int"),
     ("rank_after", "Rank after", "int"),
+    ("not_rescreened_because", "Why not re-screened", "text"),
 )
 
 PROBLEM_COLUMNS: Sequence[tuple[str, str, str]] = (
@@ -380,7 +381,7 @@ def write_workbook(
     def build(tmp: Path) -> None:
         out = _Book(tmp)
         _ranked_sheet(out, walls)
-        _look_first_sheet(out, walls, look_first)
+        _look_first_sheet(out, walls, look_first, changes)
         if changes is not None:
             _changes_sheet(out, changes)
         _results_sheet(out, walls, _toe_in_words(results, near_toe_m), full_results_limit)
@@ -434,7 +435,9 @@ def _ranked_sheet(out: _Book, walls: pd.DataFrame) -> None:
     out.table(sheet, walls, SUMMARY_COLUMNS, widths={"reason": 70, "name": 30}, coloured=True)
 
 
-def _look_first_sheet(out: _Book, walls: pd.DataFrame, look_first: int) -> None:
+def _look_first_sheet(
+    out: _Book, walls: pd.DataFrame, look_first: int, changes: pd.DataFrame | None = None
+) -> None:
     """The band 'Inspect first' (at most ``look_first`` walls), and at least the top ten."""
     first = walls[walls["priority_band"] == "inspect_first"].head(look_first)
     if len(first) < 10:
@@ -450,7 +453,34 @@ def _look_first_sheet(out: _Book, walls: pd.DataFrame, look_first: int) -> None:
     sheet.set_row(1, 32)
     sheet.merge_range(1, 0, 1, 7, CAUTION, out.f.caution)
     short = [c for c in SUMMARY_COLUMNS if c[0] in LOOK_FIRST_COLUMNS]
-    out.table(sheet, first, short, widths={"reason": 90, "name": 30}, start_row=3, coloured=True)
+    start = _carried_block(out, sheet, changes, row=3)
+    out.table(sheet, first, short, widths={"reason": 90, "name": 30}, start_row=start, coloured=True)
+
+
+def _carried_block(
+    out: _Book, sheet: Worksheet, changes: pd.DataFrame | None, row: int, shown: int = 10
+) -> int:
+    """Walls of the last run whose row was rejected this time (on no other list of this run), with
+    their band then and why; returns the row the next table starts on."""
+    from screening.history import carried_walls
+
+    carried = carried_walls(changes)
+    if not len(carried):
+        return row
+    sheet.write_string(
+        row,
+        0,
+        f"Not re-screened this run ({len(carried)}): rows rejected, carried from the last run",
+        out.f.bold,
+    )
+    for k, r in enumerate(carried.head(shown).itertuples(index=False), start=row + 1):
+        sheet.write_string(k, 1, str(r.wall_id))
+        sheet.write_string(k, 2, str(r.carried))
+    last = row + min(len(carried), shown)
+    if len(carried) > shown:
+        last += 1
+        sheet.write_string(last, 2, f"… {len(carried) - shown} more on 'Changes since last run'")
+    return last + 2
 
 
 def _changes_sheet(out: _Book, changes: pd.DataFrame) -> None:
