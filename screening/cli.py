@@ -138,6 +138,7 @@ def _print_summary(job: JobResult, top: int = 10) -> None:
         console.print(
             "Priority bands: " + ", ".join(f"{BAND_LABELS[b]} {int(bands.get(b, 0))}" for b in BANDS)
         )
+        _print_data_gaps(walls)
         checks = walls["governing_check"].value_counts()
         console.print(
             "Governing check (worst case): "
@@ -164,10 +165,46 @@ def _print_summary(job: JobResult, top: int = 10) -> None:
                 escape(str(w.reason)),
             )
         console.print(table)
+    _print_carried(job)
     _print_changes(job)
     for name, path in job.outputs.items():
         console.print(f"  {name:<12} {path}")
     console.print(f"[dim]{CAUTION}[/]")
+
+
+def _print_carried(job: JobResult, limit: int = 10) -> None:
+    """Walls of the last run whose row was rejected this time: on no other list of this run."""
+    from screening.history import carried_walls
+
+    carried = carried_walls(job.changes)
+    if not len(carried):
+        return
+    console.print(
+        f"[bold]Not re-screened this run[/] ({plural(len(carried), 'wall')} of the last run, rows rejected):"
+    )
+    for r in carried.head(limit).itertuples(index=False):
+        console.print(f"  {escape(str(r.wall_id)):<10} {escape(str(r.carried))}")
+    if len(carried) > limit:
+        console.print(f"  … {len(carried) - limit} more in changes.csv")
+
+
+def _print_data_gaps(walls: pd.DataFrame) -> None:
+    """Walls resting on suspect data, and drains not recorded counted apart from drains recorded
+    as blocked (both are screened as blocked; only one is an observation)."""
+    if "suspect_data" in walls:
+        n = int(walls["suspect_data"].fillna(False).astype(bool).sum())
+        if n:
+            rests = "rests" if n == 1 else "rest"
+            console.print(
+                f"{plural(n, 'wall')} {rests} on suspect data (a warning on an input of the mechanics: "
+                "see the reason and problems.csv)"
+            )
+    if "drainage_not_recorded" in walls:
+        gap = walls["drainage_not_recorded"].fillna(False).astype(bool)
+        blocked = int(((walls["drainage"].astype(str) == "blocked") & ~gap).sum())
+        console.print(
+            f"Drains: {blocked} recorded blocked, {int(gap.sum())} not recorded (screened as blocked)"
+        )
 
 
 def _print_changes(job: JobResult) -> None:

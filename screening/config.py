@@ -186,6 +186,9 @@ class Config:
     condition_default: Default = Default(3.0, "not recorded: middle of the 1-5 scale assumed")
     priority: PrioritySettings = field(default_factory=PrioritySettings)
     # --- outputs
+    resultant_near_toe_m: float = 0.020
+    """A resultant this close to the toe (0 < x_R < this) gives a correct but absurd toe pressure:
+    the outputs say "resultant within 20 mm of the toe" instead (results.csv keeps the number)."""
     workbook_full_results_limit: int = 1_000
     """Registers with more walls keep only this many walls, first in the ranking, on the
     workbook's per-case sheet (results.csv always has every wall)."""
@@ -276,6 +279,7 @@ NUMBER_RULES: Mapping[str, Rule] = _frozen(
         "embedment_m": Rule(0, 25, "an embedment of 0 m or more (up to 25 m)"),
         "passive_mobilisation": Rule(0, 1, "a share from 0 to 1"),
         "toe_excavation_m": Rule(0, 25, "a depth of 0 m or more (up to 25 m)"),
+        "resultant_near_toe_m": Rule(0, 1, "a distance from 0 to 1 m (0 switches the words off)"),
         "foundation_allowable_bearing_kpa": Rule(0, 1e5, "an allowable bearing pressure above 0 kPa", True),
         "foundation_base_friction_deg": _ANGLE_POS,
         "consequence_weight": Rule(0, 1e6, "a weight above 0", lo_open=True),

@@ -389,7 +389,7 @@ def describe_change(row: pd.Series) -> str:
     if row["status"] == "removed":
         return "no longer in the register"
     if row["status"] == "rejected":
-        return "its row was rejected in this run (see the problems)"
+        return carried_words(row)
     parts = []
     if row["inputs_changed"]:
         parts.append(row["inputs_changed"])
@@ -399,6 +399,56 @@ def describe_change(row: pd.Series) -> str:
     if ub is not None and ua is not None and not (pd.isna(ub) and pd.isna(ua)) and ub != ua:
         parts.append(f"utilisation {_u(ub)} → {_u(ua)}")
     return "; ".join(parts)
+
+
+def rejection_reasons(problems: pd.DataFrame) -> pd.Series:
+    """Per wall id, why its row was rejected, with the cells as the user wrote them:
+    ``not re-screened: Height (mm) 4 (expected a height of at least 0.3 m …)``."""
+    errors = problems[problems["severity"] == "error"]
+    errors = errors[errors["wall_id"].notna() & (errors["wall_id"].astype(str) != "")]
+    value = errors["value"].fillna("").astype(str)
+    cell = (
+        errors["column"].astype(str)
+        + np.where(value != "", " " + value, "")
+        + " ("
+        + errors["message"].astype(str)
+        + ")"
+    )
+    joined = cell.groupby(errors["wall_id"].astype(str), sort=False).agg("; ".join)
+    return "not re-screened: " + joined
+
+
+def carried_words(row: pd.Series) -> str:
+    """A wall of the last run whose row was rejected this time: why, and its band and rank then."""
+    because = row.get("not_rescreened_because")
+    text = because if isinstance(because, str) and because else "not re-screened: its row was rejected"
+    band, rank = row.get("priority_band_before"), row.get("rank_before")
+    if isinstance(band, str) and band:
+        was = f"was {band}" + (f", rank {int(rank)}" if rank is not None and pd.notna(rank) else "")
+        text = f"{text}; {was} in the last run"
+    return text
+
+
+def carry_rejected(changes: pd.DataFrame, problems: pd.DataFrame) -> pd.DataFrame:
+    """``changes`` with ``not_rescreened_because`` filled for the walls whose row was rejected."""
+    reasons = rejection_reasons(problems)
+    out = changes.copy()
+    rejected = out["status"] == "rejected"
+    out["not_rescreened_because"] = ""
+    out.loc[rejected, "not_rescreened_because"] = (
+        out.loc[rejected, "wall_id"].astype(str).map(reasons).fillna("not re-screened: its row was rejected")
+    )
+    return out
+
+
+def carried_walls(changes: pd.DataFrame | None) -> pd.DataFrame:
+    """The walls of the last run not re-screened this time, ranked as they were then, with words."""
+    if changes is None or not len(changes):
+        return pd.DataFrame(columns=["wall_id", "priority_band_before", "rank_before", "carried"])
+    rows = changes[changes["status"] == "rejected"].copy()
+    rows = rows.sort_values("rank_before", kind="stable", na_position="last")
+    rows["carried"] = [carried_words(r) for _, r in rows.iterrows()]
+    return rows[["wall_id", "priority_band_before", "rank_before", "carried"]].reset_index(drop=True)
 
 
 _DECIMALS = {"condition_rating": 0}

@@ -227,7 +227,7 @@ def _settings_digest(job: JobResult) -> str:
 
 def compare_with_history(job: JobResult) -> None:
     """Compare this run with the latest different run in the history (sets ``job.changes``)."""
-    from screening.history import compare, describe_change, list_runs, run_walls
+    from screening.history import carry_rejected, compare, describe_change, list_runs, run_walls
 
     assert job.history is not None
     runs = list_runs(job.history)
@@ -237,7 +237,9 @@ def compare_with_history(job: JobResult) -> None:
         return
     previous = other.iloc[-1].to_dict()
     before = run_walls(job.history, previous["run_id"])
-    job.changes = compare(before, job.walls, rejected=_rejected_ids(job))
+    job.changes = carry_rejected(
+        compare(before, job.walls, rejected=_rejected_ids(job)), job.screening.problems
+    )
     job.previous_run = previous
     moved = job.changes[job.changes["status"].isin(["changed", "added"])]
     job.map_layers["Changed since the last run"] = {
@@ -292,7 +294,17 @@ def render_map(job: JobResult, out_dir: Path, options: MapOptions | None = None)
         job.sheets,
         job.map_layers,
         options,
+        job.info.config.resultant_near_toe_m,
+        _carried_lines(job.changes),
     )
+
+
+def _carried_lines(changes: pd.DataFrame | None) -> list[str]:
+    """``HV-017: not re-screened: …; was Inspect first, rank 5 in the last run`` per carried wall."""
+    from screening.history import carried_walls
+
+    carried = carried_walls(changes)
+    return [f"{w}: {t}" for w, t in zip(carried["wall_id"].astype(str), carried["carried"], strict=True)]
 
 
 def _write_map(
@@ -304,6 +316,8 @@ def _write_map(
     sheets: dict[str, str],
     layers: dict[str, dict[str, str]],
     options: MapOptions | None,
+    near_toe_m: float = Config().resultant_near_toe_m,
+    carried: list[str] | None = None,
 ) -> Path:
     """The map of a run, titled from its provenance (the keys of :func:`provenance`)."""
     from screening.outputs.webmap import build_map, write_map
@@ -322,6 +336,8 @@ def _write_map(
         assets_dir=options.assets_dir,
         tiles=options.tiles,
         extra_layers=layers,
+        near_toe_m=near_toe_m,
+        carried=carried,
     )
     return write_map(page, folder / "map.html")
 
@@ -369,6 +385,7 @@ def write_outputs(
         provenance=provenance(job),
         changes=job.changes,
         full_results_limit=job.info.config.workbook_full_results_limit,
+        near_toe_m=job.info.config.resultant_near_toe_m,
     )
     step("GeoPackage")
     outputs["geopackage"] = write_geopackage(job.walls, job.geometry, out / "walls.gpkg")
@@ -419,4 +436,5 @@ def rerender_map(results_dir: str | Path, options: MapOptions | None = None) -> 
         layers["Changed since the last run"] = {
             str(r["wall_id"]): describe_change(r) for _, r in moved.iterrows()
         }
-    return _write_map(folder, walls, geometry, results, info, sheets, layers, options)
+    carried = _carried_lines(changes) if (folder / "changes.csv").exists() else []
+    return _write_map(folder, walls, geometry, results, info, sheets, layers, options, carried=carried)

@@ -8,15 +8,17 @@ from __future__ import annotations
 
 import dataclasses
 import warnings
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
+from numpy.typing import NDArray
 
 from screening import priority
 from screening.config import CASES, Config
 from screening.core import critical
-from screening.core.engine import BEARING_METHODS, GOVERNING, run_cases
+from screening.core.engine import BEARING_METHODS, DERIVED_INPUTS, ENGINE_INPUTS, GOVERNING, run_cases
 from screening.core.stability import FLOATING, STATES
 from screening.history import INPUT_COLUMNS, lean_rates
 from screening.prepare import Prepared, prepare
@@ -69,6 +71,92 @@ CRITICAL_COLUMNS = (
     "years_to_critical_lean",
 )
 """The figures of method.md §9, per wall in ``walls.csv``."""
+
+
+MECHANICS_COLUMNS = (frozenset(ENGINE_INPUTS) - frozenset(DERIVED_INPUTS)) | {
+    "water_height_m",
+    "material",
+    "foundation",
+    "drainage",
+}
+"""Register columns the mechanics rest on: a warning on one marks the wall as resting on suspect data."""
+
+FLAG_COLUMNS = ("suspect_data", "suspect_inputs", "drainage_not_recorded")
+"""Per wall in ``walls.csv``: a data warning on an input of the mechanics (and which inputs), and
+drainage not recorded (screened like blocked drains, method.md §4, but a data gap)."""
+
+
+def _n(values: pd.Series, digits: int) -> pd.Series:
+    return values.astype(float).map(f"{{:.{digits}f}}".format)
+
+
+_SUSPECT_WORDS: dict[str, Callable[[pd.DataFrame], pd.Series]] = {
+    "lean_deg": lambda w: (
+        "check the survey: lean " + _n(w["lean_deg"], 0) + "° is implausible for a standing wall"
+    ),
+    "height_m": lambda w: (
+        "check the data: a height of "
+        + _n(w["height_m"], 1)
+        + " m is unusual (millimetres entered as metres?)"
+    ),
+    "wall_friction_deg": lambda w: (
+        "check the data: wall friction "
+        + _n(w["wall_friction_deg"], 0)
+        + "° above the soil's friction angle "
+        + _n(w["soil_friction_deg"], 0)
+        + "°"
+    ),
+    "soil_saturated_unit_weight_kn_m3": lambda w: (
+        "check the data: saturated unit weight "
+        + _n(w["soil_saturated_unit_weight_kn_m3"], 1)
+        + " below the unit weight "
+        + _n(w["soil_unit_weight_kn_m3"], 1)
+        + " kN/m³"
+    ),
+    "embedment_m": lambda w: (
+        "check the data: embedment " + _n(w["embedment_m"], 2) + " m deeper than the wall is high"
+    ),
+}
+"""A data warning in the words of the reason line, with the figure (other columns: the message)."""
+
+
+def suspect_data(walls: pd.DataFrame, problems: pd.DataFrame, labels: Mapping[str, str]) -> pd.DataFrame:
+    """Per wall (rows of ``walls``): the warnings on its screened row that touch an input of the
+    mechanics (:data:`MECHANICS_COLUMNS`), as ``suspect_data``, ``suspect_inputs`` (canonical
+    names, "; "-separated) and ``suspect_words`` (for the reason line). ``labels`` maps the
+    canonical names to the user's headers, which the problems carry."""
+    canonical = {v: k for k, v in labels.items()}
+    warn = problems[problems["severity"] == "warning"].copy()
+    warn["canonical"] = warn["column"].map(lambda c: canonical.get(c, c))
+    position = pd.Series(np.arange(len(walls)), index=walls["row"].to_numpy())
+    warn = warn[warn["canonical"].isin(MECHANICS_COLUMNS) & warn["row"].isin(position.index)]
+    warn["pos"] = position.reindex(warn["row"].to_numpy()).to_numpy()
+    warn = warn.drop_duplicates(["pos", "canonical"])
+    words = pd.Series("", index=warn.index, dtype=object)
+    for col, rows in warn.groupby("canonical").groups.items():
+        pos = warn.loc[rows, "pos"].to_numpy()
+        if col in _SUSPECT_WORDS:
+            words.loc[rows] = _SUSPECT_WORDS[str(col)](walls.iloc[pos]).to_numpy()
+        else:
+            words.loc[rows] = (
+                "check the data: "
+                + warn.loc[rows, "column"].astype(str)
+                + ": "
+                + warn.loc[rows, "message"].astype(str)
+            ).to_numpy()
+    by_wall = warn.assign(words=words).groupby("pos")
+    out = pd.DataFrame(index=np.arange(len(walls)))
+    out["suspect_data"] = out.index.isin(warn["pos"])
+    out["suspect_inputs"] = by_wall["canonical"].agg("; ".join).reindex(out.index).fillna("")
+    out["suspect_words"] = by_wall["words"].agg("; ".join).reindex(out.index).fillna("")
+    return out
+
+
+def drainage_not_recorded(walls: pd.DataFrame) -> NDArray[np.bool_]:
+    """No measured water and the drainage blank or ``unknown``: the surveyed case rests on a data gap."""
+    drainage = walls["drainage"].astype(object)
+    gap = drainage.isna() | (drainage.astype(str) == "unknown")
+    return (gap & walls["water_height_m"].isna()).to_numpy(dtype=bool)
 
 
 class RejectedRowsWarning(UserWarning):
@@ -217,9 +305,12 @@ def add_priority(
     out["priority_score"] = np.round(100.0 * like * cons, 2)
     out["priority_band"] = priority.band(out["priority_score"], s)
     by_case = {case: results[results["case"] == case].set_index("_wall").loc[summary.index] for case in CASES}
-    out["reason"] = priority.reasons(inputs, by_case)
+    out["reason"] = priority.reasons(inputs, by_case, near_toe_m=config.resultant_near_toe_m)
     for col in (*INPUT_COLUMNS, "lean_rate_deg_per_year", "lean_rate_mm_per_year", "lean_growing"):
         out[col] = inputs[col].to_numpy()
+    for col in FLAG_COLUMNS:
+        if col in inputs:
+            out[col] = inputs[col].to_numpy()
     out["_far"] = (
         results.set_index(["wall_id", "case"])["middle_third_utilisation"]
         .reindex(list(zip(out["wall_id"], out["worst_case"], strict=True)))
@@ -290,7 +381,9 @@ def evaluate(
     results = screen_prepared(prepared, config, progress)
     summary = summarise_walls(results, prepared.walls)
     summary = summary.join(critical_figures(prepared, config, progress))
-    walls = add_priority(summary, prepared.walls, results, config)
+    flags = suspect_data(prepared.walls, prepared.problems, kwargs.get("labels") or {})  # type: ignore[arg-type]
+    flags["drainage_not_recorded"] = drainage_not_recorded(prepared.walls)
+    walls = add_priority(summary, prepared.walls.assign(**flags), results, config)
     problems = pd.concat([prepared.problems, _floating_problems(results, prepared.walls)], ignore_index=True)
     return Screening(prepared, results, walls, problems, config)
 

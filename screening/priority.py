@@ -154,7 +154,7 @@ _CHECK_WORDS = {
 }
 
 
-def _when(mask: ArrayLike, text: NDArray[np.object_]) -> NDArray[np.object_]:
+def _when(mask: ArrayLike, text: NDArray[np.object_] | str) -> NDArray[np.object_]:
     return np.where(np.asarray(mask, dtype=bool), text, "").astype(object)
 
 
@@ -208,7 +208,51 @@ def _check_words(r: pd.DataFrame) -> NDArray[np.object_]:
     return np.where(outside, "the resultant falls outside the base", words).astype(object)
 
 
-def reasons(walls: pd.DataFrame, by_case: Mapping[str, pd.DataFrame]) -> NDArray[np.object_]:
+def near_toe(resultant_from_toe_m: ArrayLike, limit_m: float) -> NDArray[np.bool_]:
+    """Where the resultant lies inside the base but within ``limit_m`` of the toe (0 < x_R < limit):
+    the toe pressure is correct but absurd there (it grows without bound as x_R → 0)."""
+    x = np.asarray(resultant_from_toe_m, dtype=float)
+    with np.errstate(invalid="ignore"):
+        return np.isfinite(x) & (x > 0) & (x < limit_m)
+
+
+def near_toe_words(limit_m: float) -> str:
+    """``resultant within 20 mm of the toe``: what is shown instead of such a toe pressure."""
+    return f"resultant within {limit_m * 1000:g} mm of the toe"
+
+
+def _case_part(r: pd.DataFrame, words: str, near_toe_m: float) -> NDArray[np.object_]:
+    """One case's words where it fails; a bearing check with the resultant at the toe in words."""
+    util = r["utilisation"].to_numpy(dtype=float)
+    check = _check_words(r)
+    figure = " (utilisation " + _fmt(util, 2) + ")"
+    if near_toe_m > 0 and "resultant_from_toe_m" in r:
+        at_toe = near_toe(r["resultant_from_toe_m"], near_toe_m) & (
+            r["governing_check"].to_numpy(dtype=object) == "bearing"
+        )
+        check = np.where(at_toe, f"the resultant is within {near_toe_m * 1000:g} mm of the toe", check)
+        figure = np.where(at_toe, "", figure)
+    return _when(util > 1, words + check + figure)
+
+
+def _suspect_part(walls: pd.DataFrame) -> NDArray[np.object_]:
+    """The data warnings on inputs of the mechanics, in words (``suspect_words``, from the pipeline)."""
+    if "suspect_words" not in walls:
+        return np.full(len(walls), "", dtype=object)
+    return walls["suspect_words"].fillna("").to_numpy(dtype=object)
+
+
+def _drainage_part(walls: pd.DataFrame) -> NDArray[np.object_]:
+    """Drainage not recorded is a data gap, screened like blocked drains (method.md §4): say so."""
+    if "drainage_not_recorded" not in walls:
+        return np.full(len(walls), "", dtype=object)
+    gap = walls["drainage_not_recorded"].fillna(False).to_numpy(dtype=bool)
+    return _when(gap, "drainage not recorded (screened as blocked)")
+
+
+def reasons(
+    walls: pd.DataFrame, by_case: Mapping[str, pd.DataFrame], near_toe_m: float = 0.0
+) -> NDArray[np.object_]:
     """A one-line reason in plain words for each wall, built column-wise (object arrays).
 
     ``walls`` needs ``condition_rating``, ``lean_deg``, ``crack_height_m``, ``consequence``,
@@ -219,16 +263,14 @@ def reasons(walls: pd.DataFrame, by_case: Mapping[str, pd.DataFrame]) -> NDArray
     """
     parts: list[NDArray[np.object_]] = []
     for case, words in (("surveyed", "as surveyed "), ("blocked", "with drains blocked ")):
-        r = by_case[case]
-        util = r["utilisation"].to_numpy(dtype=float)
-        check = _check_words(r)
-        parts.append(_when(util > 1, words + check + " (utilisation " + _fmt(util, 2) + ")"))
+        parts.append(_case_part(by_case[case], words, near_toe_m))
     # say the blocked case only where it adds to the surveyed one
     same = (parts[1] != "") & (
         np.char.replace(parts[1].astype(str), "with drains blocked ", "")
         == np.char.replace(parts[0].astype(str), "as surveyed ", "")
     )
     parts[1] = _when(~same, parts[1])
+    parts.append(_drainage_part(walls))
     water, years = _critical_parts(walls)
     parts.append(water)
     cond = walls["condition_rating"].to_numpy(dtype=float)
@@ -247,9 +289,8 @@ def reasons(walls: pd.DataFrame, by_case: Mapping[str, pd.DataFrame]) -> NDArray
     below = np.char.replace(walls["consequence"].to_numpy(dtype=str), "_", " ").astype(object)
     parts.append(below + " below, " + _fmt(walls["height_m"], 1) + " m high")
     text = np.full(len(walls), "", dtype=object)
-    for part in parts:
+    passes = _when((parts[0] == "") & (parts[1] == ""), "passes every check in every case")
+    for part in (_suspect_part(walls), passes, *parts):  # a data warning is said first
         text = text + np.where((text != "") & (part != ""), "; ", "") + part
-    none_fail = (parts[0] == "") & (parts[1] == "")
-    text = np.where(none_fail, "passes every check in every case; ", "").astype(object) + text
     s = pd.Series(text, dtype=object)
     return (s.str.slice(0, 1).str.upper() + s.str.slice(1)).to_numpy(dtype=object)

@@ -37,6 +37,7 @@ from screening.core.engine import ENGINE_INPUTS, decode, run_cases
 from screening.io.writers import write_text_atomic
 from screening.outputs import sheet_filename
 from screening.outputs.workbook import CAUTION
+from screening.priority import near_toe, near_toe_words
 from screening.schema import UNITS
 
 TEMPLATE = "sheet.html.j2"  # package data of screening.outputs
@@ -185,7 +186,10 @@ def _draw_base_pressure(ax: Axes, w: _Outline, d: dict[str, np.ndarray], i: int,
         xs, qs = [max(b - 3 * (b - x_r), 0), b], [0, heel]
     below = [-v * bscale for v in qs]
     ax.fill_between(xs, [0, 0], below, color="#7B3294", alpha=0.35, lw=0, label="base pressure")
-    ax.text(0, -toe * bscale - 0.05 * h, f"{toe:.0f} kPa", fontsize=8, ha="left", va="top")
+    label = (
+        str(d["_near_toe_text"][i]) if "_near_toe_text" in d and d["_near_toe_text"][i] else f"{toe:.0f} kPa"
+    )
+    ax.text(0, -toe * bscale - 0.05 * h, label, fontsize=8, ha="left", va="top")
 
 
 def _frame(ax: Axes, w: _Outline, case: str, hw: float, utilisation: float) -> None:
@@ -412,13 +416,20 @@ def _case_steps(
     eq_numbers, eq_values = _case_equilibrium(wall, d, i)
     checks = [(name, d[name][i], 2, "") for name in _UTILISATIONS]
     gov = str(d["governing_check"][i])
+    tags = _tagged(case + ".", [*load_values, *eq_values, *checks])
+    if "_near_toe_text" in d and d["_near_toe_text"][i]:  # the toe pressure is absurd there: in words
+        tags["toe_pressure_kpa"] = {
+            "key": case + ".toe_pressure_kpa",
+            "text": str(d["_near_toe_text"][i]),
+            "unit": "",
+        }
     return {
         "n": n,
         "title": CASE_TITLES[case],
         "has_water": float(d["water_height_m"][i]) > 0,
         "state": str(d["state"][i]),
         "numbers": load_numbers | eq_numbers,
-        "tags": _tagged(case + ".", [*load_values, *eq_values, *checks]),
+        "tags": tags,
         "crack": _crack_plane(wall, d, i, case + "."),
         "governing": CHECK_WORDS.get(gov, gov),
         "verdict": _verdict(case, d, i),
@@ -550,6 +561,7 @@ def write_sheets(
     d["_g"], d["_gs"], d["_q"] = g, gs, q
     d["_p_base"] = d["ka"] * (g * (r - hw) + (gs - config.gamma_w_kn_m3) * hw + q)
     d["_w_base"] = config.gamma_w_kn_m3 * hw
+    d["_near_toe_text"] = _near_toe_text(d, config)
     folder = Path(out_dir) / "sheets"
     folder.mkdir(parents=True, exist_ok=True)
     _template()  # compiled once, before any worker is forked
@@ -569,6 +581,13 @@ def write_sheets(
 
 
 _JOB: Any = None
+
+
+def _near_toe_text(d: dict[str, np.ndarray], config: Config) -> np.ndarray:
+    """Per row: "resultant within 20 mm of the toe" where it is (shown instead of the toe pressure)."""
+    limit = config.resultant_near_toe_m
+    at_toe = near_toe(d["resultant_from_toe_m"], limit) if limit > 0 else np.zeros(len(d["case"]), bool)
+    return np.where(at_toe, near_toe_words(limit), "").astype(object)
 
 
 def _write_one(pos: int) -> tuple[str, str]:

@@ -65,17 +65,36 @@
       var r = el("tr");
       r.setAttribute("data-case", c);
       var gov = D.govNames[D.gov[k][i]];
-      [CASE_NAMES[c], fmt(D.u[k][i], 2), CHECK_NAMES[gov] || gov, fmt(D.e[k][i], 2) + " / " + fmt(D.b6[i], 2),
-       fmt(D.q[k][i], 0) + " / " + fmt(D.qa[i], 0), fmt(D.fs[k][i], 2), fmt(D.fo[k][i], 2)]
+      [CASE_NAMES[c], fmt(D.u[k][i], 2), govText(gov, k, i), fmt(D.e[k][i], 2) + " / " + fmt(D.b6[i], 2),
+       toeText(k, i), fmt(D.fs[k][i], 2), fmt(D.fo[k][i], 2)]
         .forEach(function (x) { r.appendChild(el("td", x)); });
       t.appendChild(r);
     });
     d.appendChild(t);
+    ownerNotes(d, i);
     if (D.sheet[i]) {
       var a = el("a", "Calculation sheet"); a.href = D.sheet[i]; a.target = "_blank"; a.rel = "noopener";
       d.appendChild(a);
     }
     return d;
+  }
+  // the popup's words for the mechanics of old walls: the governing bed joint with its height,
+  // a resultant at the toe in words (its toe pressure is absurd), the Annex D resistance
+  function govText(gov, k, i) {
+    var name = CHECK_NAMES[gov] || gov.replace(/_/g, " ");
+    if (gov.indexOf("joint_") === 0 && D.jz && isFinite(D.jz[k][i])) {
+      name = "bed joint at " + fmt(D.jz[k][i], 2) + " m: " + gov.slice(6).replace(/_/g, " ");
+    }
+    return name;
+  }
+  function toeText(k, i) {
+    if (D.nearToe && D.nearToe[k][i]) return D.nearToeText;
+    if (D.annexD && D.annexD[i]) return fmt(D.q[k][i], 0) + " / R " + fmt(D.R[k][i], 0) + " kN/m (Annex D)";
+    return fmt(D.q[k][i], 0) + " / " + fmt(D.qa[i], 0);
+  }
+  function ownerNotes(d, i) {
+    if (!D.notes) return;
+    D.notes.forEach(function (lines) { if (lines[i]) d.appendChild(el("div", lines[i], "note")); });
   }
   function shape(i, st) {
     var pts = latlngs(i);

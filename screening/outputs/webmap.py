@@ -29,7 +29,7 @@ import shapely
 from screening.config import CASES
 from screening.io.writers import write_text_atomic
 from screening.outputs.workbook import BAND_COLOURS
-from screening.priority import BAND_LABELS, BANDS
+from screening.priority import BAND_LABELS, BANDS, LEAN_CAUTION, near_toe, near_toe_words
 
 LEAFLET_VERSION = "1.9.3"
 LEAFLET_CDN = f"https://cdn.jsdelivr.net/npm/leaflet@{LEAFLET_VERSION}/dist"
@@ -85,6 +85,7 @@ def map_data(
     geometry: np.ndarray,
     results: pd.DataFrame,
     sheets: dict[str, str] | None = None,
+    near_toe_m: float = 0.0,
 ) -> dict[str, Any]:
     """The map's data, column-wise: one list per property, walls in ranking order.
 
@@ -136,6 +137,105 @@ def map_data(
         "q": [_rounded(by_case[c]["toe_pressure_kpa"], 1) for c in CASES],
         "fs": [_rounded(by_case[c]["fos_sliding"], 2) for c in CASES],
         "fo": [_rounded(by_case[c]["fos_overturning"], 2) for c in CASES],
+    } | owner_data(w, by_case, near_toe_m)
+
+
+def _words_where(mask: Any, text: Any) -> np.ndarray:
+    return np.where(np.asarray(mask, dtype=bool), np.asarray(text, dtype=object), "").astype(object)
+
+
+def _num(values: Any, digits: int) -> np.ndarray:
+    v = np.asarray(values, dtype=float)
+    return np.char.mod(f"%.{digits}f", np.where(np.isfinite(v), v, 0.0)).astype(object)
+
+
+def owner_notes(w: pd.DataFrame) -> list[list[str]]:
+    """Lines under the popup's table, column-wise ("" where a line does not apply): suspect data,
+    drainage not recorded, and the figures of method.md §9 with the caution beside the years."""
+    n = len(w)
+    blank = np.full(n, "", dtype=object)
+
+    def col(name: str) -> np.ndarray:
+        return w[name].to_numpy(dtype=float) if name in w else np.full(n, np.nan)
+
+    suspect = (
+        w["suspect_inputs"].fillna("").astype(str).to_numpy(dtype=object) if "suspect_inputs" in w else blank
+    )
+    gap = (
+        w["drainage_not_recorded"].fillna(False).to_numpy(dtype=bool)
+        if "drainage_not_recorded" in w
+        else blank != ""
+    )
+    hc, frac, top = col("critical_water_height_m"), col("critical_water_fraction"), col("retained_height_m")
+    water = np.where(
+        np.isnan(hc),
+        "Critical water height: holds with water to the top of the retained ground",
+        np.where(
+            hc == 0,
+            "Critical water height: 0 m (fails with no water behind it)",
+            "Critical water height "
+            + _num(hc, 2)
+            + " m of "
+            + _num(top, 2)
+            + " m ("
+            + _num(100 * frac, 0)
+            + " % of the retained height)",
+        ),
+    ).astype(object)
+    lean, now, years = col("critical_lean_deg"), col("lean_deg"), col("years_to_critical_lean")
+    crit_lean = np.where(
+        np.isnan(lean),
+        "Critical lean: not reached by 45°",
+        "Critical lean " + _num(lean, 1) + "° (resultant at the toe); lean now " + _num(now, 1) + "°",
+    ).astype(object)
+    shown = np.where(years < 1, "under a year", "about " + _num(np.round(years), 0) + " years")
+    time = _words_where(
+        np.isfinite(years),
+        "Time to the critical lean at the present rate: " + shown + " (" + LEAN_CAUTION + ")",
+    )
+    return [
+        _words_where(suspect != "", "Resting on suspect data: " + suspect + " (see the reason)").tolist(),
+        _words_where(gap, "Drainage not recorded: screened as blocked").tolist(),
+        (water if "critical_water_height_m" in w else blank).tolist(),
+        (crit_lean if "critical_lean_deg" in w else blank).tolist(),
+        time.tolist(),
+    ]
+
+
+def owner_data(w: pd.DataFrame, by_case: dict[str, pd.DataFrame], near_toe_m: float) -> dict[str, Any]:
+    """What the popup adds to the figures per case: the notes of :func:`owner_notes`, the suspect
+    inputs, a resultant at the toe (``nearToe`` per case, shown in words instead of the toe
+    pressure), the governing bed joint's height (``jz``) and the Annex D resistance (``R``)."""
+
+    def per_case(name: str, digits: int) -> list[list[float]]:
+        return [
+            _rounded(by_case[c][name] if name in by_case[c] else np.full(len(w), np.nan), digits)
+            for c in CASES
+        ]
+
+    annex_d = [
+        (by_case[c]["bearing_method"].astype(str).to_numpy() == "annex_d").tolist()
+        if "bearing_method" in by_case[c]
+        else [False] * len(w)
+        for c in CASES
+    ]
+    return {
+        "notes": owner_notes(w),
+        "suspect": w["suspect_inputs"].fillna("").astype(str).tolist()
+        if "suspect_inputs" in w
+        else [""] * len(w),
+        "nearToe": [
+            (
+                near_toe(by_case[c]["resultant_from_toe_m"], near_toe_m)
+                if near_toe_m > 0
+                else np.zeros(len(w), bool)
+            ).tolist()
+            for c in CASES
+        ],
+        "nearToeText": near_toe_words(near_toe_m),
+        "jz": per_case("joint_height_m", 2),
+        "R": per_case("bearing_resistance_kn_m", 0),
+        "annexD": annex_d[0],
     }
 
 
@@ -163,6 +263,8 @@ def build_map(
     assets_dir: str | Path | None = None,
     tiles: str | None = None,
     extra_layers: dict[str, Any] | None = None,
+    near_toe_m: float = 0.0,
+    carried: list[str] | None = None,
 ) -> MapPage:
     """The folium map of a run (see the module docstring).
 
@@ -179,7 +281,7 @@ def build_map(
     extra_layers : dict, optional
         Name -> {wall id: text} overlays (e.g. "changed since the last survey").
     """
-    data = map_data(walls, geometry, results, sheets)
+    data = map_data(walls, geometry, results, sheets, near_toe_m)
     n = len(data["id"])
     bounds = _bounds(data["xy"])
     m = _base_map(bounds, canvas=n > CANVAS_FROM, tiles=tiles)
@@ -187,7 +289,8 @@ def build_map(
     root: Any = m.get_root()
     root.header.add_child(folium.Element(f"<style>\n{page_file('webmap.css')}</style>"))
     unlocated = int((~walls["located"].astype(bool)).sum())
-    root.html.add_child(folium.Element(_info_box(title, subtitle, drawn=n, unlocated=unlocated)))
+    box = _info_box(title, subtitle, drawn=n, unlocated=unlocated)
+    root.html.add_child(folium.Element(_with_carried(box, carried or [])))
     settings = _settings(bounds, extra_layers or {}, canvas=n > CANVAS_FROM)
     config = {"map": m.get_name(), "data": data, "settings": settings}
     return MapPage(m, _script_json(config))
@@ -249,6 +352,21 @@ def _info_box(title: str, subtitle: str, *, drawn: int, unlocated: int) -> str:
         f'<div class="ws-sub">{drawn} walls drawn{missing}'
         f'</div><div class="ws-caution">{html.escape(CAUTION)}</div></div>'
     )
+
+
+def _with_carried(box: str, carried: list[str], shown: int = 10) -> str:
+    """The info box with the walls of the last run not re-screened this time (rows rejected),
+    each with its band then and why: they are on no other list of this run."""
+    if not carried:
+        return box
+    items = "".join(f"<li>{html.escape(line)}</li>" for line in carried[:shown])
+    more = f"<li>… {len(carried) - shown} more in changes.csv</li>" if len(carried) > shown else ""
+    block = (
+        f'<div class="ws-carried"><b>Not re-screened this run ({len(carried)}): rows rejected, '
+        f"carried from the last run</b><ul>{items}{more}</ul></div>"
+    )
+    head, sep, tail = box.rpartition('<div class="ws-caution">')
+    return f"{head}{block}{sep}{tail}"
 
 
 def _settings(bounds: list[list[float]], extra_layers: dict[str, Any], *, canvas: bool) -> dict[str, Any]:

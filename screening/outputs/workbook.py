@@ -19,7 +19,7 @@ import xlsxwriter
 from xlsxwriter.worksheet import Worksheet
 
 from screening.io.writers import write_atomic
-from screening.priority import BAND_LABELS
+from screening.priority import BAND_LABELS, near_toe, near_toe_words
 
 CAUTION = (
     "Screening aid only. These results come from a simplified check of existing walls from "
@@ -59,6 +59,13 @@ SUMMARY_COLUMNS: Sequence[tuple[str, str, str]] = (
     ("lean_deg", "Lean [°]", "num2"),
     ("crack_height_m", "Crack height [m]", "num2"),
     ("located", "On the map", "bool"),
+    ("suspect_data", "Resting on suspect data", "bool"),
+    ("suspect_inputs", "Suspect inputs", "text"),
+    ("drainage_not_recorded", "Drainage not recorded (screened as blocked)", "bool"),
+    ("critical_water_height_m", "Critical water height [m]", "num2"),
+    ("critical_water_fraction", "Critical water height / retained height [-]", "num2"),
+    ("critical_lean_deg", "Critical lean (resultant at the toe) [°]", "num2"),
+    ("years_to_critical_lean", "Years to critical lean (a projection, not a prediction)", "num2"),
     ("sheet", "Calculation sheet", "link"),
 )
 
@@ -87,6 +94,7 @@ CHANGE_COLUMNS: Sequence[tuple[str, str, str]] = (
     ("priority_band_after", "Band after", "word"),
     ("rank_before", "Rank before", "int"),
     ("rank_after", "Rank after", "int"),
+    ("not_rescreened_because", "Why not re-screened", "text"),
 )
 
 PROBLEM_COLUMNS: Sequence[tuple[str, str, str]] = (
@@ -231,6 +239,11 @@ def _column_values(values: pd.Series, kind: str) -> list[Any]:
         out[np.isposinf(v)] = "∞"
         out[np.isneginf(v)] = "-∞"
         return out.tolist()
+    if kind == "num3_or_words":  # numbers, with words where a number would mislead
+        words = values.map(lambda x: isinstance(x, str)).to_numpy(dtype=bool)
+        out = np.array(_column_values(values.where(~words), "num3"), dtype=object)
+        out[words] = values.to_numpy(dtype=object)[words]
+        return out.tolist()
     if kind == "bool":
         missing = values.isna().to_numpy()
         out = values.to_numpy(dtype=object).copy()
@@ -271,7 +284,7 @@ def _table(
         )
         frame = frame.head(room)
     sheet.set_row(start_row, 45)
-    formats = {"num2": f.num2, "num3": f.num3, "int": f.int}
+    formats = {"num2": f.num2, "num3": f.num3, "int": f.int, "num3_or_words": f.num3}
     for c, (name, header, kind) in enumerate(cols):
         sheet.write_string(start_row, c, header, f.header)
         width = (widths or {}).get(name, max(10, min(len(header) + 2, 22)))
@@ -356,6 +369,7 @@ def write_workbook(
     changes: pd.DataFrame | None = None,
     full_results_limit: int = 1_000,
     look_first: int = 100,
+    near_toe_m: float = 0.0,
 ) -> Path:
     """Write ``report.xlsx`` atomically. See the module docstring for the sheets.
 
@@ -367,10 +381,10 @@ def write_workbook(
     def build(tmp: Path) -> None:
         out = _Book(tmp)
         _ranked_sheet(out, walls)
-        _look_first_sheet(out, walls, look_first)
+        _look_first_sheet(out, walls, look_first, changes)
         if changes is not None:
             _changes_sheet(out, changes)
-        _results_sheet(out, walls, results, full_results_limit)
+        _results_sheet(out, walls, _toe_in_words(results, near_toe_m), full_results_limit)
         _rejected_sheet(out, problems)
         _assumed_sheets(out, assumptions)
         _settings_sheet(out, provenance, settings)
@@ -421,7 +435,9 @@ def _ranked_sheet(out: _Book, walls: pd.DataFrame) -> None:
     out.table(sheet, walls, SUMMARY_COLUMNS, widths={"reason": 70, "name": 30}, coloured=True)
 
 
-def _look_first_sheet(out: _Book, walls: pd.DataFrame, look_first: int) -> None:
+def _look_first_sheet(
+    out: _Book, walls: pd.DataFrame, look_first: int, changes: pd.DataFrame | None = None
+) -> None:
     """The band 'Inspect first' (at most ``look_first`` walls), and at least the top ten."""
     first = walls[walls["priority_band"] == "inspect_first"].head(look_first)
     if len(first) < 10:
@@ -437,7 +453,34 @@ def _look_first_sheet(out: _Book, walls: pd.DataFrame, look_first: int) -> None:
     sheet.set_row(1, 32)
     sheet.merge_range(1, 0, 1, 7, CAUTION, out.f.caution)
     short = [c for c in SUMMARY_COLUMNS if c[0] in LOOK_FIRST_COLUMNS]
-    out.table(sheet, first, short, widths={"reason": 90, "name": 30}, start_row=3, coloured=True)
+    start = _carried_block(out, sheet, changes, row=3)
+    out.table(sheet, first, short, widths={"reason": 90, "name": 30}, start_row=start, coloured=True)
+
+
+def _carried_block(
+    out: _Book, sheet: Worksheet, changes: pd.DataFrame | None, row: int, shown: int = 10
+) -> int:
+    """Walls of the last run whose row was rejected this time (on no other list of this run), with
+    their band then and why; returns the row the next table starts on."""
+    from screening.history import carried_walls
+
+    carried = carried_walls(changes)
+    if not len(carried):
+        return row
+    sheet.write_string(
+        row,
+        0,
+        f"Not re-screened this run ({len(carried)}): rows rejected, carried from the last run",
+        out.f.bold,
+    )
+    for k, r in enumerate(carried.head(shown).itertuples(index=False), start=row + 1):
+        sheet.write_string(k, 1, str(r.wall_id))
+        sheet.write_string(k, 2, str(r.carried))
+    last = row + min(len(carried), shown)
+    if len(carried) > shown:
+        last += 1
+        sheet.write_string(last, 2, f"… {len(carried) - shown} more on 'Changes since last run'")
+    return last + 2
 
 
 def _changes_sheet(out: _Book, changes: pd.DataFrame) -> None:
@@ -464,7 +507,21 @@ def _results_sheet(out: _Book, walls: pd.DataFrame, results: pd.DataFrame, limit
         )
         start = 2
     cols = [(c, RESULT_HEADERS.get(c, c.replace("_", " ")), _kind(c, results[c])) for c in results.columns]
+    cols = [(c, h, "num3_or_words" if c == "toe_pressure_kpa" else k) for c, h, k in cols]
     out.table(sheet, shown, cols, start_row=start, coloured=True)
+
+
+def _toe_in_words(results: pd.DataFrame, near_toe_m: float) -> pd.DataFrame:
+    """The toe pressure of a resultant within ``near_toe_m`` of the toe in words (the number,
+    correct but absurd, stays in results.csv)."""
+    if near_toe_m <= 0 or "toe_pressure_kpa" not in results or "resultant_from_toe_m" not in results:
+        return results
+    at_toe = near_toe(results["resultant_from_toe_m"], near_toe_m)
+    if not at_toe.any():
+        return results
+    toe = results["toe_pressure_kpa"].astype(object)
+    toe[at_toe] = near_toe_words(near_toe_m)
+    return results.assign(toe_pressure_kpa=toe)
 
 
 def _rejected_sheet(out: _Book, problems: pd.DataFrame) -> None:
