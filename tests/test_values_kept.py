@@ -1,0 +1,59 @@
+"""The speed work of issue #18 changes no value: a fresh run against the references in
+``tests/reference/`` (written before the work by ``tests/reference/make_reference.py``), on the
+sample register and on a seeded random register of 10^4 walls, within 6 significant figures."""
+
+from __future__ import annotations
+
+import gzip
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from tests.reference.make_reference import HERE, random_job, sample_job, tables
+
+
+def _reference(name: str, table: str) -> pd.DataFrame:
+    with gzip.open(HERE / f"{name}_{table}.csv.gz", "rt", encoding="utf-8") as fh:
+        return pd.read_csv(fh, dtype=str, keep_default_na=False)
+
+
+def _numbers(values: pd.Series) -> np.ndarray:
+    return pd.to_numeric(values.replace("", np.nan), errors="coerce").to_numpy(dtype=float)
+
+
+def assert_same(old: pd.DataFrame, new: pd.DataFrame, what: str) -> None:
+    """Same columns, rows and text; numbers within 6 significant figures (1e-5 relative)."""
+    assert list(new.columns) == list(old.columns), what
+    assert len(new) == len(old), what
+    for col in old.columns:
+        a, b = old[col].to_numpy(dtype=str), new[col].to_numpy(dtype=str)
+        differ = a != b
+        if not differ.any():
+            continue
+        x, y = _numbers(old[col])[differ], _numbers(new[col])[differ]
+        close = np.isclose(x, y, rtol=1e-5, atol=1e-9) | (x == y)
+        bad = np.flatnonzero(differ)[~close]
+        assert not len(bad), f"{what}.{col}: {len(bad)} rows differ, e.g. {a[bad[0]]!r} -> {b[bad[0]]!r}"
+
+
+@pytest.fixture(scope="module", params=["sample", "random"])
+def fresh(request) -> tuple[str, dict[str, pd.DataFrame]]:
+    job = sample_job() if request.param == "sample" else random_job()
+    return request.param, tables(job)
+
+
+@pytest.mark.parametrize("table", ["results", "walls", "assumptions"])
+def test_a_fresh_run_gives_the_reference_values(fresh, table: str) -> None:
+    name, new = fresh
+    assert_same(_reference(name, table), new[table], f"{name} {table}")
+
+
+def test_the_comparison_catches_a_change_in_the_sixth_figure(tmp_path: Path) -> None:
+    old = pd.DataFrame({"x": ["1.23456", "inf", ""], "t": ["a", "b", "c"]})
+    assert_same(old, old.assign(x=["1.234561", "inf", ""]), "kept")
+    with pytest.raises(AssertionError, match="x: 1 rows differ"):
+        assert_same(old, old.assign(x=["1.23466", "inf", ""]), "moved")
+    with pytest.raises(AssertionError, match="t: 1 rows differ"):
+        assert_same(old, old.assign(t=["a", "b", "d"]), "text")
