@@ -192,6 +192,36 @@ class Config:
     workbook_full_results_limit: int = 1_000
     """Registers with more walls keep only this many walls, first in the ranking, on the
     workbook's per-case sheet (results.csv always has every wall)."""
+    # --- uncertainty (method.md §13): draws, standing today, probability of failure
+    samples: int = 2000
+    """Draws per wall (n); 0 switches the probabilities off."""
+    seed: int = 20261201
+    """Seed of the one matrix of draws per run (numpy's PCG64): the same seed, the same figures."""
+    p_stands_min: float = 0.01
+    """Below this share of draws in which the wall could stand, its figures cannot be right."""
+    sd_soil_friction_recorded_deg: float = 2.0
+    sd_soil_friction_default_deg: float = 4.0
+    sd_soil_unit_weight_recorded: float = 0.05
+    """Fractions of the value (γ; γ_sat follows)."""
+    sd_soil_unit_weight_default: float = 0.10
+    sd_wall_unit_weight_recorded: float = 0.05
+    sd_wall_unit_weight_default: float = 0.10
+    sd_wall_unit_weight_drystone: float = 0.10
+    """Drystone's voids vary from wall to wall: this SD whether recorded or not."""
+    sd_base_friction_recorded_deg: float = 2.0
+    sd_base_friction_default_deg: float = 4.0
+    sd_joint_friction_recorded_deg: float = 2.0
+    sd_joint_friction_default_deg: float = 4.0
+    sd_ultimate_bearing_log: float = 0.30
+    """SD of ln q_ult (a lognormal about the median)."""
+    ultimate_bearing_factor: float = 3.0
+    """Median ultimate bearing pressure = this × the allowable (presumed values carry about 3)."""
+    sd_dimensions: Mapping[str, float] = field(
+        default_factory=lambda: _frozen({"measured": 0.02, "recorded": 0.05, "estimated": 0.20})
+    )
+    """SD of the one factor on B, t and f, by ``dimensions_source`` (blank reads recorded)."""
+    samples_chunk: int = 200_000
+    """Wall-draws evaluated per pass of the engine (bounds the working memory)."""
     # --- run
     chunk_size: int = 20_000
     """Walls screened per pass; larger registers go through the engine in chunks, which bounds
@@ -361,6 +391,7 @@ def _validate(c: Config) -> None:
     for name in ("joint_planes", "workbook_full_results_limit", "chunk_size"):
         value = getattr(c, name)
         need(isinstance(value, int) and not isinstance(value, bool), name, value, "a whole number")
+    _validate_uncertainty(c, need)
     _validate_criteria(c, need)
 
 
@@ -378,6 +409,57 @@ def _validate_criteria(c: Config, need: Any) -> None:
             "a fraction of B/2 above 0 and up to 1 "
             "(1/3 = middle third, 1/2 = 75 % of the base in compression)",
         )
+
+
+UNCERTAINTY_SDS = (
+    "sd_soil_friction_recorded_deg",
+    "sd_soil_friction_default_deg",
+    "sd_soil_unit_weight_recorded",
+    "sd_soil_unit_weight_default",
+    "sd_wall_unit_weight_recorded",
+    "sd_wall_unit_weight_default",
+    "sd_wall_unit_weight_drystone",
+    "sd_base_friction_recorded_deg",
+    "sd_base_friction_default_deg",
+    "sd_joint_friction_recorded_deg",
+    "sd_joint_friction_default_deg",
+    "sd_ultimate_bearing_log",
+)
+DIMENSION_SOURCES = ("measured", "recorded", "estimated")
+
+
+def _validate_uncertainty(c: Config, need: Any) -> None:
+    """The settings of method.md §13: whole numbers where counted, SDs that keep values positive."""
+    for name, limit in (("samples", 1_000_000), ("seed", 2**63 - 1)):
+        value = getattr(c, name)
+        ok = isinstance(value, int) and not isinstance(value, bool) and 0 <= value <= limit
+        need(ok, name, value, f"a whole number from 0 to {limit:,}")
+    need(0 <= c.p_stands_min < 1, "p_stands_min", c.p_stands_min, "a share from 0 up to (not including) 1")
+    for name in UNCERTAINTY_SDS:
+        value = getattr(c, name)
+        fraction = not name.endswith("_deg") and name != "sd_ultimate_bearing_log"
+        top: float = 1 / 3 if fraction else 20.0
+        need(0 <= value < top, name, value, f"an SD from 0 up to {top:.3g} (draws reach 3 SD)")
+    need(
+        c.ultimate_bearing_factor > 0,
+        "ultimate_bearing_factor",
+        c.ultimate_bearing_factor,
+        "a factor above 0",
+    )
+    need(
+        set(c.sd_dimensions) == set(DIMENSION_SOURCES),
+        "sd_dimensions",
+        dict(c.sd_dimensions),
+        f"one SD for each of {', '.join(DIMENSION_SOURCES)}",
+    )
+    for key, value in c.sd_dimensions.items():
+        need(0 <= value < 1 / 3, f"sd_dimensions.{key}", value, "a fraction from 0 up to 1/3")
+    need(
+        isinstance(c.samples_chunk, int) and c.samples_chunk >= 1,
+        "samples_chunk",
+        c.samples_chunk,
+        "a whole number of wall-draws of 1 or more",
+    )
 
 
 def _criteria(value: Any) -> tuple[Mapping[str, CaseCriteria], str]:
