@@ -343,3 +343,35 @@ def test_the_sheet_sets_out_the_joint_annex_d_and_critical_water(tmp_path: Path)
         walls.at["OLD", "years_to_critical_lean"], abs=0.05
     )
     assert "a projection, not a prediction" in sheet
+
+
+@pytest.mark.browser
+def test_the_popup_shows_the_new_lines_in_chromium(tmp_path: Path) -> None:
+    from tests.browser import browser_page
+
+    wall = worked_wall("OLD", 2.0, material="stone_masonry", foundation_friction_deg=30.0, embedment_m=0.5)
+    rows = [_near_toe_wall(), dict(wall, lean_deg=7.0)]
+    folder, _ = _run(tmp_path, rows)
+    with browser_page() as page:
+        errors: list[str] = []
+        page.on("pageerror", lambda e: errors.append(str(e)))
+        page.goto((folder / "map.html").as_uri())
+        page.wait_for_function("window.wallscreenMap !== undefined")
+        page.fill("#ws-search-input", "toe")
+        page.press("#ws-search-input", "Enter")
+        popup = page.locator(".ws-popup")
+        popup.wait_for()
+        cells = popup.locator("tr[data-case='surveyed'] td").all_inner_texts()
+        assert cells[4] == "resultant within 20 mm of the toe"
+        page.keyboard.press("Escape")
+        page.fill("#ws-search-input", "OLD")
+        page.press("#ws-search-input", "Enter")
+        page.wait_for_function(
+            "document.querySelector('.ws-popup') && "
+            "document.querySelector('.ws-popup').innerText.includes('OLD')"
+        )
+        text = page.locator(".ws-popup").inner_text()
+        assert "Resting on suspect data: lean_deg" in text
+        assert "Critical water height" in text and "Critical lean" in text
+        assert "(Annex D)" in text
+        assert not errors
