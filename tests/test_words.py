@@ -207,7 +207,9 @@ def test_a_wall_rejected_this_time_is_carried_with_its_previous_band(tmp_path: P
     result = runner.invoke(app, ["run", str(reg1), "--out", str(tmp_path / "o1"), "--history", str(history)])
     assert result.exit_code == 0, result.output
     before = pd.read_csv(tmp_path / "o1" / "walls.csv").set_index("wall_id")
-    band = {"inspect_first": "Inspect first", "inspect_soon": "Inspect soon"}[before.at["BAD", "priority_band"]]
+    band = {"inspect_first": "Inspect first", "inspect_soon": "Inspect soon"}[
+        before.at["BAD", "priority_band"]
+    ]
     # the next survey: a typo puts the height in millimetres' place (4 for 4 m would be 0.004)
     reg2 = _csv(tmp_path, [dict(bad, height_m=0.004), worked_wall("OK", 2.0)], name="second.csv")
     out = tmp_path / "o2"
@@ -227,3 +229,149 @@ def test_a_wall_rejected_this_time_is_carried_with_its_previous_band(tmp_path: P
     page = (out / "map.html").read_text(encoding="utf-8")
     assert "Not re-screened this run (1)" in page
     assert "BAD: not re-screened: height_m 0.004" in page
+
+
+# ------------------------------------------------------------ the mechanics of old walls, where an owner reads
+
+
+def _old_wall_run(tmp_path: Path, config: str = "") -> Path:
+    """A masonry wall (bed joints checked) on soil with a recorded friction angle (Annex D), surveyed
+    twice a year apart with a growing lean (a lean rate), screened with calculation sheets."""
+    wall = worked_wall("OLD", 2.0, material="stone_masonry", foundation_friction_deg=30.0, embedment_m=0.5)
+    rows = [
+        dict(wall, survey_date="2024-06-01", lean_deg=0.5),
+        dict(wall, survey_date="2025-06-01", lean_deg=1.0),
+    ]
+    extra = ["--sheets"]
+    if config:
+        (tmp_path / "config.toml").write_text(config, encoding="utf-8")
+        extra += ["--config", str(tmp_path / "config.toml")]
+    folder, _ = _run(tmp_path, rows, *extra)
+    return folder
+
+
+def test_the_critical_figures_joint_and_annex_d_reach_the_workbook(tmp_path: Path) -> None:
+    folder = _old_wall_run(tmp_path)
+    walls = pd.read_csv(folder / "walls.csv").set_index("wall_id")
+    assert np.isfinite(walls.at["OLD", "years_to_critical_lean"])  # the lean is growing
+    ranked = _table(folder / "report.xlsx", "Ranked walls", "Rank").set_index("Wall")
+    for column, header in (
+        ("critical_water_height_m", "Critical water height [m]"),
+        ("critical_water_fraction", "Critical water height / retained height"),
+        ("critical_lean_deg", "Critical lean"),
+        ("years_to_critical_lean", "Years to critical lean"),
+    ):
+        assert ranked.at["OLD", _header(ranked, header)] == pytest.approx(walls.at["OLD", column]), column
+    assert "a projection, not a prediction" in _header(ranked, "Years to critical lean")
+    method = " ".join(
+        str(c) for r in _sheet_rows(folder / "report.xlsx", "Method and cautions") for c in r if c
+    )
+    assert "a projection, not a prediction" in method
+    by_case = _table(folder / "report.xlsx", "Results by case", "wall id")
+    results = pd.read_csv(folder / "results.csv")
+    assert by_case[_header(by_case, "Governing bed joint z")].tolist() == pytest.approx(
+        results["joint_height_m"].tolist()
+    )
+    assert set(by_case[_header(by_case, "Bearing method")]) == {"EN 1997-1 Annex D"}
+    assert by_case[_header(by_case, "Bearing resistance R")].tolist() == pytest.approx(
+        results["bearing_resistance_kn_m"].tolist()
+    )
+    settings = dict((r[0], r[1]) for r in _sheet_rows(folder / "report.xlsx", "Settings") if r and r[0])
+    assert "no criteria per case set" in settings["criteria"]
+
+
+def test_the_settings_sheet_names_the_criteria_source(tmp_path: Path) -> None:
+    folder = _old_wall_run(tmp_path, 'criteria = "by_load_category"\n')
+    settings = dict((r[0], r[1]) for r in _sheet_rows(folder / "report.xlsx", "Settings") if r and r[0])
+    assert "EM 1110-2-2100" in settings["criteria source"]  # method.md §12 names it so
+    assert "fos sliding required 1.33" in settings["criteria, blocked"]
+    sheet = next((folder / "sheets").glob("*.html")).read_text(encoding="utf-8")
+    blocked = sheet[sheet.index("Drains blocked") :]
+    assert "sliding 1.33/FoS" in blocked and "resultant |e|/(0.5 · B/2)" in blocked
+
+
+def test_the_map_popup_carries_the_old_wall_figures(tmp_path: Path) -> None:
+    folder = _old_wall_run(tmp_path)
+    walls = pd.read_csv(folder / "walls.csv").set_index("wall_id")
+    data = _map_data(folder)
+    i = data["id"].index("OLD")
+    notes = [lines[i] for lines in data["notes"] if lines[i]]
+    hc = walls.at["OLD", "critical_water_height_m"]
+    assert any(n.startswith(f"Critical water height {hc:.2f} m of 3.00 m") for n in notes), notes
+    assert any(n.startswith(f"Critical lean {walls.at['OLD', 'critical_lean_deg']:.1f}°") for n in notes)
+    assert any("a projection, not a prediction" in n for n in notes)
+    results = pd.read_csv(folder / "results.csv").set_index("case")
+    for k, case in enumerate(data["cases"]):
+        assert data["jz"][k][i] == pytest.approx(results.at[case, "joint_height_m"], abs=0.005)
+        assert data["R"][k][i] == pytest.approx(results.at[case, "bearing_resistance_kn_m"], abs=0.5)
+    assert data["annexD"][i] is True
+
+
+def _tagged(sheet: str, key: str) -> str:
+    found = re.search(rf'data-key="{re.escape(key)}">([^<]*)<', sheet)
+    assert found is not None, key
+    return found.group(1)
+
+
+def test_the_sheet_sets_out_the_joint_annex_d_and_critical_water(tmp_path: Path) -> None:
+    folder = _old_wall_run(tmp_path)
+    sheet = next((folder / "sheets").glob("*.html")).read_text(encoding="utf-8")
+    results = pd.read_csv(folder / "results.csv").set_index("case")
+    walls = pd.read_csv(folder / "walls.csv").set_index("wall_id")
+    # the inputs table lists register columns only, not the derived inputs
+    inputs = sheet[sheet.index("1. Inputs") : sheet.index("2. Section")]
+    assert "joint_check" not in inputs and "<td>surveyed_water_height_m</td>" not in inputs
+    # Annex D factors at φ'_f = 30°: N_q 18.40, N_c 30.14, N_γ 20.09 (EN 1997-1 Annex D tables,
+    # as quoted in method.md §10)
+    assert _tagged(sheet, "drained.bearing_n_q") == "18.40"
+    assert _tagged(sheet, "drained.bearing_n_c") == "30.14"
+    assert _tagged(sheet, "drained.bearing_n_gamma") == "20.09"
+    assert float(_tagged(sheet, "blocked.bearing_resistance_kn_m")) == pytest.approx(
+        results.at["blocked", "bearing_resistance_kn_m"], abs=0.05
+    )
+    assert "EN 1997-1 Annex D" in sheet
+    for case in ("drained", "blocked", "surveyed"):
+        assert float(_tagged(sheet, f"{case}.joint_height_m")) == pytest.approx(
+            results.at[case, "joint_height_m"], abs=0.005
+        )
+    alt = re.search(r'<img class="fig" alt="([^"]*)"', sheet)
+    assert alt is not None and "governing bed joint at" in alt.group(1)
+    hc = walls.at["OLD", "critical_water_height_m"]
+    assert f"critical water level at {hc:.2f} m" in alt.group(1)
+    assert float(_tagged(sheet, "critical.critical_water_height_m")) == pytest.approx(hc, abs=5e-4)
+    assert float(_tagged(sheet, "critical.years_to_critical_lean")) == pytest.approx(
+        walls.at["OLD", "years_to_critical_lean"], abs=0.05
+    )
+    assert "a projection, not a prediction" in sheet
+
+
+@pytest.mark.browser
+def test_the_popup_shows_the_new_lines_in_chromium(tmp_path: Path) -> None:
+    from tests.browser import browser_page
+
+    wall = worked_wall("OLD", 2.0, material="stone_masonry", foundation_friction_deg=30.0, embedment_m=0.5)
+    rows = [_near_toe_wall(), dict(wall, lean_deg=7.0)]
+    folder, _ = _run(tmp_path, rows)
+    with browser_page() as page:
+        errors: list[str] = []
+        page.on("pageerror", lambda e: errors.append(str(e)))
+        page.goto((folder / "map.html").as_uri())
+        page.wait_for_function("window.wallscreenMap !== undefined")
+        page.fill("#ws-search-input", "toe")
+        page.press("#ws-search-input", "Enter")
+        popup = page.locator(".ws-popup")
+        popup.wait_for()
+        cells = popup.locator("tr[data-case='surveyed'] td").all_inner_texts()
+        assert cells[4] == "resultant within 20 mm of the toe"
+        page.keyboard.press("Escape")
+        page.fill("#ws-search-input", "OLD")
+        page.press("#ws-search-input", "Enter")
+        page.wait_for_function(
+            "document.querySelector('.ws-popup') && "
+            "document.querySelector('.ws-popup').innerText.includes('OLD')"
+        )
+        text = page.locator(".ws-popup").inner_text()
+        assert "Resting on suspect data: lean_deg" in text
+        assert "Critical water height" in text and "Critical lean" in text
+        assert "(Annex D)" in text
+        assert not errors

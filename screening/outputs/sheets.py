@@ -33,11 +33,12 @@ from matplotlib.patches import Polygon
 
 from screening import __version__
 from screening.config import CASES, Config
-from screening.core.engine import ENGINE_INPUTS, decode, run_cases
+from screening.core import critical
+from screening.core.engine import DERIVED_INPUTS, ENGINE_INPUTS, decode, run_cases
 from screening.io.writers import write_text_atomic
 from screening.outputs import sheet_filename
 from screening.outputs.workbook import CAUTION
-from screening.priority import near_toe, near_toe_words
+from screening.priority import LEAN_CAUTION, near_toe, near_toe_words
 from screening.schema import UNITS
 
 TEMPLATE = "sheet.html.j2"  # package data of screening.outputs
@@ -214,6 +215,40 @@ def _legend(fig: Figure, axes: Iterable[Axes]) -> None:
     fig.legend(handles, labels, loc="lower center", ncol=len(labels), fontsize=8, frameon=False)
 
 
+def _draw_old_wall_marks(ax: Axes, w: _Outline, d: dict[str, np.ndarray], i: int) -> None:
+    """The governing bed joint of this case (method.md §8) across the leaned section, and the
+    critical water height (§9) behind the wall."""
+    z = float(d["joint_height_m"][i]) if "joint_height_m" in d else math.nan
+    if np.isfinite(z) and 0 < z < w.h:
+        bc = w.b - (w.f + w.back) * z / w.h
+        fc = w.f * z / w.h
+        ends = zip(w.rot(fc, z), w.rot(fc + bc, z), strict=True)
+        ax.plot(*ends, color="#E08214", lw=2.0, ls="-.", label="governing bed joint")
+    hc = float(d["_critical_water_m"][i]) if "_critical_water_m" in d else math.nan
+    if np.isfinite(hc) and hc > 0:
+        ax.plot(
+            [w.b, w.b + 0.8 * w.b + 1],
+            [hc, hc],
+            color="#1F5FBF",
+            lw=1.0,
+            ls=":",
+            label="critical water level",
+        )
+
+
+def _figure_alt(d: dict[str, np.ndarray], j: dict[str, int]) -> str:
+    """The figure in words: what is drawn, including the marks of :func:`_draw_old_wall_marks`."""
+    words = ["wall section, pressures and base pressure in each case"]
+    for case in CASES:
+        z = float(d["joint_height_m"][j[case]]) if "joint_height_m" in d else math.nan
+        if np.isfinite(z):
+            words.append(f"{case}: governing bed joint at {z:.2f} m")
+    hc = float(d["_critical_water_m"][j["drained"]]) if "_critical_water_m" in d else math.nan
+    if np.isfinite(hc) and hc > 0:
+        words.append(f"critical water level at {hc:.2f} m")
+    return "; ".join(words)
+
+
 def _png_data_uri(fig: Figure) -> str:
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=80)
@@ -235,6 +270,7 @@ def _figure(wall: pd.Series, d: dict[str, np.ndarray], j: dict[str, int], cfg: C
         _draw_back_pressures(ax, w, d, i, scale, cfg.gamma_w_kn_m3)
         _draw_resultant(ax, w, x_r)
         _draw_base_pressure(ax, w, d, i, x_r)
+        _draw_old_wall_marks(ax, w, d, i)
         _frame(ax, w, case, hw, float(d["utilisation"][i]))
     axes[0].set_ylabel("z from the underside of the base [m]")
     _legend(fig, axes)
@@ -254,7 +290,7 @@ def _input_rows(wall: pd.Series, assumptions: pd.DataFrame) -> list[dict[str, An
 
     rows: list[dict[str, Any]] = []
     for key in ENGINE_INPUTS:
-        if key == "surveyed_water_height_m":
+        if key in DERIVED_INPUTS:  # not register columns: the surveyed water is set out below
             continue
         value = wall[key]
         how = origin(key)
@@ -408,6 +444,111 @@ def _crack_plane(wall: pd.Series, d: dict[str, np.ndarray], i: int, prefix: str)
     }
 
 
+_JOINT_VALUES = (  # tagged name, engine column, digits, unit
+    ("joint_height_m", "joint_height_m", 2, "m"),
+    ("joint_base_width_m", "joint_d_base_width_m", 3, "m"),
+    ("joint_height_above_m", "joint_d_height_m", 3, "m"),
+    ("joint_vertical_kn_m", "joint_d_vertical_kn_m", 2, "kN/m"),
+    ("joint_horizontal_kn_m", "joint_d_horizontal_kn_m", 2, "kN/m"),
+    ("joint_eccentricity_m", "joint_d_eccentricity_m", 3, "m"),
+    ("joint_fos_sliding", "joint_d_fos_sliding", 2, ""),
+    ("joint_fos_overturning", "joint_d_fos_overturning", 2, ""),
+    ("joint_middle_third_utilisation", "joint_middle_third_utilisation", 2, ""),
+    ("joint_sliding_utilisation", "joint_sliding_utilisation", 2, ""),
+    ("joint_overturning_utilisation", "joint_overturning_utilisation", 2, ""),
+)
+
+
+def _joint_plane(wall: pd.Series, d: dict[str, np.ndarray], i: int, prefix: str) -> dict[str, Any] | None:
+    """The governing bed joint of this case (method.md §8), checked as a crack plane (None if
+    the wall's bed joints are not checked)."""
+    if "joint_height_m" not in d or not np.isfinite(d["joint_height_m"][i]):
+        return None
+    return {
+        "joint_friction": f"{float(wall['joint_friction_deg']):.0f}",
+        "tags": _tagged(
+            prefix,
+            ((name, d[col][i] if col in d else math.nan, n, unit) for name, col, n, unit in _JOINT_VALUES),
+        ),
+    }
+
+
+_ANNEX_D_VALUES = (  # tagged name, engine column, digits, unit
+    ("effective_width_m", "d_bearing_effective_width_m", 3, "m"),
+    ("overburden_kpa", "d_bearing_overburden_kpa", 2, "kPa"),
+    ("n_q", "d_bearing_n_q", 2, ""),
+    ("n_c", "d_bearing_n_c", 2, ""),
+    ("n_gamma", "d_bearing_n_gamma", 2, ""),
+    ("i_q", "d_bearing_i_q", 4, ""),
+    ("i_c", "d_bearing_i_c", 4, ""),
+    ("i_gamma", "d_bearing_i_gamma", 4, ""),
+    ("q_ult_kpa", "d_bearing_q_ult_kpa", 1, "kPa"),
+    ("resistance_kn_m", "bearing_resistance_kn_m", 1, "kN/m"),
+)
+
+
+def _annex_d_steps(
+    wall: pd.Series, d: dict[str, np.ndarray], i: int, prefix: str, cfg: Config
+) -> dict[str, Any] | None:
+    """The bearing resistance of EN 1997-1 Annex D with its factors (method.md §10); None where
+    the presumed allowable pressure is used."""
+    if str(d["bearing_method"][i]) != "annex_d":
+        return None
+    phi = float(wall["foundation_friction_deg"])
+    numbers = {
+        "inputs": f"φ'_f = {phi:.1f}°, c' = {float(wall['foundation_cohesion_kpa']):.1f} kPa, "
+        f"γ_f = {float(wall['foundation_unit_weight_kn_m3']):.1f} kN/m³, D = max({float(wall['embedment_m']):.2f}"
+        f" − {cfg.toe_excavation_m:.2f}, 0) m",
+        "loads": f"V = {float(d['vertical_kn_m'][i]):.2f}, H_b = {float(d['horizontal_kn_m'][i]):.2f} kN/m, "
+        f"e = {float(d['eccentricity_m'][i]):.3f} m",
+        "factor": f"{cfg.fos_bearing_required:g}",
+    }
+    tags = _tagged(
+        prefix + "bearing_",
+        ((name, d[col][i] if col in d else math.nan, n, unit) for name, col, n, unit in _ANNEX_D_VALUES),
+    )
+    return {"numbers": numbers, "tags": tags}
+
+
+def _case_required(case: str, cfg: Config) -> dict[str, str]:
+    """The required factors of this case: per case where criteria are set (method.md §12)."""
+    c = cfg.case_criteria()[case]
+    return {
+        "sliding": f"{c.fos_sliding_required:g}",
+        "overturning": f"{c.fos_overturning_required:g}",
+        "resultant_limit": f"{c.resultant_limit:.3g}",
+    }
+
+
+def _critical_steps(wall: pd.Series, d: dict[str, np.ndarray], j: dict[str, int]) -> dict[str, Any] | None:
+    """Critical water height, critical lean and the years to it (method.md §9), with the caution."""
+    if "_critical_water_m" not in d:  # arrays of the engine alone: the figures are not known
+        return None
+    i = j["drained"]
+    hc, lean, years = (float(d[k][i]) for k in ("_critical_water_m", "_critical_lean_deg", "_years_to_lean"))
+    top = float(wall["retained_height_m"])
+    if np.isnan(hc):
+        water = "holds with water to the top of the retained ground"
+    elif hc == 0:
+        water = "fails with no water behind it (the drained case fails)"
+    else:
+        water = f"fails once water rises above {hc:.3f} m of {top:.3f} m"
+    return {
+        "water": water,
+        "tags": _tagged(
+            "critical.",
+            [
+                ("critical_water_height_m", hc, 3, "m"),
+                ("critical_water_fraction", hc / top if top > 0 and np.isfinite(hc) else math.nan, 3, ""),
+                ("critical_lean_deg", lean, 2, "°"),
+                ("years_to_critical_lean", years, 1, "years"),
+            ],
+        ),
+        "has_years": bool(np.isfinite(years)),
+        "caution": LEAN_CAUTION,
+    }
+
+
 def _case_steps(
     n: int, case: str, wall: pd.Series, d: dict[str, np.ndarray], i: int, cfg: Config
 ) -> dict[str, Any]:
@@ -431,6 +572,12 @@ def _case_steps(
         "numbers": load_numbers | eq_numbers,
         "tags": tags,
         "crack": _crack_plane(wall, d, i, case + "."),
+        "joint": _joint_plane(wall, d, i, case + "."),
+        "annex_d": _annex_d_steps(wall, d, i, case + ".", cfg),
+        "criteria": _case_required(case, cfg),
+        "resultant": _tag(case + ".resultant_utilisation", d["resultant_utilisation"][i], 2)
+        if cfg.criteria_set
+        else None,
         "governing": CHECK_WORDS.get(gov, gov),
         "verdict": _verdict(case, d, i),
     }
@@ -468,6 +615,8 @@ def sheet_context(
         "inputs": _input_rows(wall, assumptions),
         "section": _section_steps(wall, d, j["drained"]),
         "figure": _figure(wall, d, j, cfg) if with_figure else "",
+        "figure_alt": _figure_alt(d, j),
+        "critical": _critical_steps(wall, d, j),
         "cases": [_case_steps(n, case, wall, d, j[case], cfg) for n, case in enumerate(CASES, start=4)],
         "uplift": cfg.uplift,
         "required": _required(cfg),
@@ -562,6 +711,7 @@ def write_sheets(
     d["_p_base"] = d["ka"] * (g * (r - hw) + (gs - config.gamma_w_kn_m3) * hw + q)
     d["_w_base"] = config.gamma_w_kn_m3 * hw
     d["_near_toe_text"] = _near_toe_text(d, config)
+    d.update(_critical_rows(sub, inputs, config, tiled))
     folder = Path(out_dir) / "sheets"
     folder.mkdir(parents=True, exist_ok=True)
     _template()  # compiled once, before any worker is forked
@@ -581,6 +731,25 @@ def write_sheets(
 
 
 _JOB: Any = None
+
+
+def _critical_rows(
+    sub: pd.DataFrame, inputs: dict[str, np.ndarray], config: Config, tiled: np.ndarray
+) -> dict[str, np.ndarray]:
+    """The §9 figures of these walls (the same functions as the bulk run), one per engine row."""
+    water = critical.critical_water_height(inputs, config)
+    lean = critical.critical_lean(inputs, config)
+    rate = (
+        sub["lean_rate_deg_per_year"].to_numpy(float)
+        if "lean_rate_deg_per_year" in sub
+        else np.full(len(sub), np.nan)
+    )
+    years = critical.years_to_critical_lean(lean, sub["lean_deg"].to_numpy(float), rate)
+    return {
+        "_critical_water_m": water[tiled],
+        "_critical_lean_deg": lean[tiled],
+        "_years_to_lean": years[tiled],
+    }
 
 
 def _near_toe_text(d: dict[str, np.ndarray], config: Config) -> np.ndarray:

@@ -19,7 +19,7 @@ import xlsxwriter
 from xlsxwriter.worksheet import Worksheet
 
 from screening.io.writers import write_atomic
-from screening.priority import BAND_LABELS, near_toe, near_toe_words
+from screening.priority import BAND_LABELS, LEAN_CAUTION, near_toe, near_toe_words
 
 CAUTION = (
     "Screening aid only. These results come from a simplified check of existing walls from "
@@ -132,7 +132,17 @@ RESULT_HEADERS = {
     "toe_pressure_kpa": "Toe pressure [kPa]",
     "heel_pressure_kpa": "Heel pressure [kPa]",
     "crack_eccentricity_m": "Crack e [m]",
+    "joint_height_m": "Governing bed joint z [m]",
+    "joint_middle_third_utilisation": "Bed joint middle third utilisation [-]",
+    "joint_sliding_utilisation": "Bed joint sliding utilisation [-]",
+    "joint_overturning_utilisation": "Bed joint overturning utilisation [-]",
+    "bearing_method": "Bearing method",
+    "bearing_resistance_kn_m": "Bearing resistance R (EN 1997-1 Annex D) [kN/m]",
+    "resultant_utilisation": "Resultant utilisation (criteria per case) [-]",
+    "passive_resistance_kn_m": "Passive resistance P_p [kN/m]",
 }
+WORDS = {"annex_d": "EN 1997-1 Annex D", "presumed": "presumed allowable"}
+"""Our coded words as the workbook shows them (with the band labels)."""
 
 
 METHOD_TEXT: list[tuple[str, str]] = [
@@ -186,6 +196,24 @@ METHOD_TEXT: list[tuple[str, str]] = [
         "Blanks are filled from documented defaults (EN 1991-1-1 Annex A unit weights, BS 8002 "
         "surcharge, presumed bearing values after BS 8004 Table 1 and NAVFAC DM 7.02); every one used is "
         "listed on the sheets 'Assumed defaults' and 'Assumed per wall'.",
+    ),
+    (
+        "Every bed joint",
+        "Masonry and drystone walls are also checked on the horizontal planes k·H/N above the base "
+        "(N = joint_planes), each as the crack plane; 'Results by case' gives the governing plane's height "
+        "and utilisations.",
+    ),
+    (
+        "Critical water height and lean",
+        "The lowest water height behind the wall at which a check first fails (0: fails with none; blank: "
+        "holds with water to the top), and the outward lean at which the resultant reaches the toe. The "
+        "years to that lean at the measured rate are " + LEAN_CAUTION + ".",
+    ),
+    (
+        "Bearing after EN 1997-1 Annex D",
+        "Where the foundation soil's friction angle is recorded, the drained bearing resistance of a strip "
+        "on the effective width B' = B − 2|e| with load inclination factors replaces the presumed allowable "
+        "pressure; utilisation V·F_b/R.",
     ),
     (
         "Not included",
@@ -253,7 +281,7 @@ def _column_values(values: pd.Series, kind: str) -> list[Any]:
     missing = values.isna().to_numpy()
     text = values.astype(object).where(~values.isna(), "").astype(str)
     if kind == "word":
-        text = text.replace(BAND_LABELS).str.replace("_", " ", regex=False)
+        text = text.replace({**BAND_LABELS, **WORDS}).str.replace("_", " ", regex=False)
     out = text.to_numpy(dtype=object)
     out[missing] = None
     return out.tolist()
@@ -544,8 +572,32 @@ def _settings_sheet(out: _Book, provenance: list[tuple[str, Any]], settings: dic
     sheet = out.sheet("Settings")
     sheet.set_column(0, 0, 34)
     sheet.set_column(1, 1, 100)
-    r = _key_value(sheet, [*provenance, *(("note", t) for t in out.notes)], out.f)
+    r = _key_value(sheet, [*provenance, *_criteria_rows(settings), *(("note", t) for t in out.notes)], out.f)
     _key_value(sheet, _flatten(settings), out.f, start=r + 1)
+
+
+def _criteria_rows(settings: dict[str, Any]) -> list[tuple[str, Any]]:
+    """Which criteria the checks used and where they come from (method.md §12)."""
+    criteria = settings.get("criteria") or {}
+    if not criteria:
+        sliding, overturning = settings.get("fos_sliding_required"), settings.get("fos_overturning_required")
+        factors = (
+            f"sliding {sliding:g}, overturning {overturning:g}, "
+            if isinstance(sliding, (int, float)) and isinstance(overturning, (int, float))
+            else ""
+        )
+        return [
+            (
+                "criteria",
+                f"the same in every case: {factors}resultant within the middle third "
+                "(no criteria per case set)",
+            )
+        ]
+    rows: list[tuple[str, Any]] = [("criteria source", str(settings.get("criteria_source") or "config file"))]
+    for case, c in criteria.items():
+        parts = [f"{k.replace('_', ' ')} {v:.4g}" for k, v in c.items() if v is not None]
+        rows.append((f"criteria, {case}", "; ".join(parts) + " (missing keys take the top-level values)"))
+    return rows
 
 
 def _method_sheet(out: _Book, method_text: list[tuple[str, str]]) -> None:
