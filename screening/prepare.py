@@ -202,8 +202,17 @@ def _range(
 
 
 def _m(values: pd.Series) -> pd.Series:
-    """Lengths as the messages show them: metres to the centimetre, trailing zeros dropped."""
-    return values.map(lambda v: f"{v:.2f}".rstrip("0").rstrip(".") if pd.notna(v) else "blank")
+    """Lengths as the messages show them: metres to the centimetre, trailing zeros dropped;
+    a length under 5 mm keeps three significant figures so that it never reads as 0 m."""
+
+    def text(v: float) -> str:
+        if pd.isna(v):
+            return "blank"
+        if v != 0 and abs(v) < 0.005:
+            return f"{v:.3g}"
+        return f"{v:.2f}".rstrip("0").rstrip(".")
+
+    return values.map(text)
 
 
 def _words(*parts: str | pd.Series) -> pd.Series:

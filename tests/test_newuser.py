@@ -167,3 +167,11 @@ def test_nothing_user_facing_names_a_development_file() -> None:
     run = evaluate(pd.DataFrame(walls))
     for text in run.prepared.assumptions["source"].astype(str):
         assert "shared/" not in text and ".md" not in text, text
+
+
+def test_a_height_of_millimetres_given_as_metres_is_not_shown_as_zero() -> None:
+    # a 4 mm "height" beside a 5.3 m retained height: the message must show 0.004 m, not 0 m
+    problems = _problems([worked_wall("T", 2.0, height_m=0.004, retained_height_m=5.3)])
+    messages = " ".join(problems.loc[problems["wall_id"] == "T", "message"])
+    assert "wall height 0 m" not in messages
+    assert "0.004" in messages
