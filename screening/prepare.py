@@ -203,7 +203,9 @@ def _range(
 
 def _m(values: pd.Series) -> pd.Series:
     """Lengths as the messages show them: metres to the centimetre, trailing zeros dropped."""
-    return values.map(lambda v: f"{v:.2f}".rstrip("0").rstrip(".") if pd.notna(v) else "blank")
+    v = values.to_numpy(dtype=float)
+    text = np.char.rstrip(np.char.rstrip(np.char.mod("%.2f", np.where(np.isnan(v), 0.0, v)), "0"), ".")
+    return pd.Series(np.where(np.isnan(v), "blank", text), index=values.index, dtype=object)
 
 
 def _words(*parts: str | pd.Series) -> pd.Series:
