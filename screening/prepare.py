@@ -204,15 +204,12 @@ def _range(
 def _m(values: pd.Series) -> pd.Series:
     """Lengths as the messages show them: metres to the centimetre, trailing zeros dropped;
     a length under 5 mm keeps three significant figures so that it never reads as 0 m."""
-
-    def text(v: float) -> str:
-        if pd.isna(v):
-            return "blank"
-        if v != 0 and abs(v) < 0.005:
-            return f"{v:.3g}"
-        return f"{v:.2f}".rstrip("0").rstrip(".")
-
-    return values.map(text)
+    v = values.to_numpy(dtype=float)
+    filled = np.where(np.isnan(v), 0.0, v)
+    text = np.char.rstrip(np.char.rstrip(np.char.mod("%.2f", filled), "0"), ".")
+    small = (filled != 0) & (np.abs(filled) < 0.005)
+    text = np.where(small, np.char.mod("%.3g", filled), text)
+    return pd.Series(np.where(np.isnan(v), "blank", text), index=values.index, dtype=object)
 
 
 def _words(*parts: str | pd.Series) -> pd.Series:

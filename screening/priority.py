@@ -134,8 +134,27 @@ def _fmt(values: ArrayLike, digits: int) -> NDArray[np.object_]:
     """Numbers as text with fixed decimals, vectorised; ∞ for infinity, '' for NaN."""
     v = np.asarray(values, dtype=float)
     finite = np.isfinite(v)
-    text = np.char.mod(f"%.{digits}f", np.where(finite, v, 0.0)).astype(object)
+    text = _fixed(np.where(finite, v, 0.0), digits)
     return np.where(np.isinf(v), "∞", np.where(finite, text, "")).astype(object)
+
+
+def _fixed(v: FloatArray, digits: int) -> NDArray[np.object_]:
+    """``%.{digits}f`` of finite values, each distinct rounded value formatted once (a register
+    holds few: 10^5 utilisations to two decimals are some hundreds of texts). Values near a
+    halfway point, or negative and rounding to 0 (printed "-0"), are formatted one by one, so
+    the text is always exactly printf's."""
+    scaled = v * 10.0**digits
+    near_half = np.abs(np.abs(scaled - np.floor(scaled)) - 0.5) < 1e-6
+    own = near_half | (np.abs(scaled) > 1e12) | (np.signbit(v) & (np.round(v, digits) == 0))
+    out = np.empty(v.shape, dtype=object)
+    pattern = f"%.{digits}f"
+    out[own] = [pattern % x for x in v[own]]
+    rest = v[~own]
+    if rest.size:
+        _, first, inverse = np.unique(np.round(rest, digits), return_index=True, return_inverse=True)
+        texts = np.array([pattern % x for x in rest[first]], dtype=object)
+        out[~own] = texts[inverse.reshape(-1)]
+    return out
 
 
 _CHECK_WORDS = {

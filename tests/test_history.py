@@ -83,6 +83,7 @@ def test_exactly_the_survey_changes_are_reported(two_surveys: Path) -> None:
 
 
 def test_lean_rate_from_the_survey_dates(two_surveys: Path) -> None:
+    # walls.csv holds 6 significant figures (README, "Outputs")
     walls = pd.read_csv(two_surveys / "walls.csv").set_index("wall_id")
     a, b = _raw(2025), _raw(2026)
     years = (pd.Timestamp("2026-06-18") - pd.Timestamp("2025-06-12")).days / 365.25
@@ -90,9 +91,9 @@ def test_lean_rate_from_the_survey_dates(two_surveys: Path) -> None:
         h = b.at[wall, "Height (mm)"] / 1000
         lean = [math.degrees(math.atan(x.at[wall, "Lean at top (mm)"] / 1000 / h)) for x in (a, b)]
         rate = (lean[1] - lean[0]) / years
-        assert walls.at[wall, "lean_rate_deg_per_year"] == pytest.approx(rate, rel=1e-9)
+        assert walls.at[wall, "lean_rate_deg_per_year"] == pytest.approx(rate, rel=1e-5)
         assert walls.at[wall, "lean_rate_mm_per_year"] == pytest.approx(
-            math.radians(rate) * h * 1000, rel=1e-9
+            math.radians(rate) * h * 1000, rel=1e-5
         )
         assert bool(walls.at[wall, "lean_growing"])
         assert "lean growing" in walls.at[wall, "reason"]

@@ -11,7 +11,10 @@ import tempfile
 from collections.abc import Callable, Iterator
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.csv as pa_csv
 
 
 @contextlib.contextmanager
@@ -41,9 +44,63 @@ def write_atomic(target: str | Path, writer: Callable[[Path], object]) -> Path:
     return Path(target)
 
 
+CSV_DIGITS = 6
+"""Significant figures of the numbers in the CSV outputs (README, "Outputs")."""
+
+
+def significant(values: np.ndarray, digits: int = CSV_DIGITS) -> np.ndarray:
+    """Floats rounded to ``digits`` significant figures, so that their shortest text has at most
+    that many; 0, ``inf`` and NaN unchanged. Divides or multiplies by an exact power of ten, so
+    the result is the double nearest the rounded decimal."""
+    v = np.asarray(values, dtype=float)
+    out = v.copy()
+    ok = np.isfinite(v) & (np.abs(v) > 1e-290)  # below, the power of ten would overflow
+    if not ok.any():
+        return out
+    x = v[ok]
+    shift = (digits - 1 - np.floor(np.log10(np.abs(x)))).astype(int)
+    up = shift >= 0
+    up_scale = 10.0 ** np.where(up, shift, 0)
+    down_scale = 10.0 ** np.where(up, 0, -shift)
+    out[ok] = np.where(up, np.round(x * up_scale) / up_scale, np.round(x / down_scale) * down_scale)
+    return out
+
+
+def csv_text(values: pd.Series) -> pd.Series:
+    """The hook every text column passes through before it is written (identity here)."""
+    return values
+
+
+def _arrow_column(values: pd.Series) -> pa.Array:
+    """One column as pandas' ``to_csv`` would write it: NaN blank, ``inf`` kept, True/False,
+    dates as YYYY-MM-DD; floats at :data:`CSV_DIGITS` significant figures."""
+    if pd.api.types.is_bool_dtype(values) and not values.isna().any():
+        return pa.array(np.where(values.to_numpy(dtype=bool), "True", "False"))
+    if pd.api.types.is_float_dtype(values):
+        return pa.array(significant(values.to_numpy(dtype=float)), from_pandas=True)
+    if pd.api.types.is_integer_dtype(values) and not isinstance(values.dtype, pd.CategoricalDtype):
+        return pa.array(values.to_numpy())
+    if pd.api.types.is_datetime64_any_dtype(values):
+        dates = values.dt.normalize().eq(values) | values.isna()
+        text = values.dt.strftime("%Y-%m-%d" if dates.all() else "%Y-%m-%d %H:%M:%S")
+        return pa.array(text.astype(object).where(values.notna(), None))
+    text = values.astype(object)
+    missing = values.isna().to_numpy()
+    text = pd.Series(np.where(missing, None, text.astype(str).to_numpy(dtype=object)), index=values.index)
+    return pa.array(csv_text(text).to_numpy(dtype=object), type=pa.string(), from_pandas=True)
+
+
+def _write_arrow_csv(frame: pd.DataFrame, tmp: Path) -> None:
+    table = pa.table({str(c): _arrow_column(frame[c]) for c in frame.columns})
+    pa_csv.write_csv(table, tmp, write_options=pa_csv.WriteOptions(quoting_style="needed"))
+
+
 def write_csv(frame: pd.DataFrame, target: str | Path) -> Path:
-    """CSV with ``inf`` written as such and blanks for missing values."""
-    return write_atomic(target, lambda tmp: frame.to_csv(tmp, index=False, encoding="utf-8"))
+    """CSV with ``inf`` written as such, blanks for missing values and numbers at
+    :data:`CSV_DIGITS` significant figures (pyarrow's writer: some 10 times pandas' speed)."""
+    if frame.columns.has_duplicates or not len(frame.columns):
+        return write_atomic(target, lambda tmp: frame.to_csv(tmp, index=False, encoding="utf-8"))
+    return write_atomic(target, lambda tmp: _write_arrow_csv(frame, tmp))
 
 
 def write_text_atomic(target: str | Path, text: str) -> Path:
