@@ -392,6 +392,7 @@ def compare(
 
     from screening.history import compare as compare_runs
     from screening.history import list_runs, run_walls
+    from screening.io.readers import read_result_csv
     from screening.io.writers import write_csv
 
     try:
@@ -417,12 +418,12 @@ def compare(
             for folder in (first, second):
                 if not (folder / "walls.csv").exists():
                     raise ScreeningError(f"{folder}: no walls.csv (not a wallscreen result folder)")
-            before = pd.read_csv(first / "walls.csv", dtype={"wall_id": str})
-            after = pd.read_csv(second / "walls.csv", dtype={"wall_id": str})
+            before = read_result_csv(first / "walls.csv")
+            after = read_result_csv(second / "walls.csv")
             problems = second / "problems.csv"
             rejected = []
             if problems.exists():
-                p = pd.read_csv(problems, dtype={"wall_id": str})
+                p = read_result_csv(problems)
                 rejected = list(p.loc[p["severity"] == "error", "wall_id"].dropna())
             label = f"{first} → {second}"
         else:

@@ -17,6 +17,7 @@ from screening.config import Config
 from screening.io import LoadedRegister, load_register
 from screening.io.locate import locate
 from screening.io.writers import write_csv, write_text_atomic
+from screening.io.xlsxcheck import SheetLimits
 from screening.outputs import sheet_filename
 from screening.pipeline import RESULT_COLUMNS, Screening, evaluate
 from screening.progress import Progress
@@ -121,7 +122,8 @@ def screen_file(
     from screening.history import lean_points
 
     config = config or Config()
-    loaded = load_register(register_path, mapping=mapping, sheet=sheet)
+    limits = SheetLimits(config.max_cells, config.max_sheet_mb)
+    loaded = load_register(register_path, mapping=mapping, sheet=sheet, limits=limits)
     run = evaluate(
         loaded.frame,
         config,
@@ -390,6 +392,7 @@ def rerender_map(results_dir: str | Path, options: MapOptions | None = None) -> 
     import geopandas as gpd
 
     from screening.errors import RegisterError
+    from screening.io.readers import read_result_csv
 
     folder = Path(results_dir)
     needed = [folder / "walls.gpkg", folder / "results.csv", folder / "run.json"]
@@ -397,7 +400,7 @@ def rerender_map(results_dir: str | Path, options: MapOptions | None = None) -> 
     if missing:
         raise RegisterError(f"{folder}: not a wallscreen output folder (missing {', '.join(missing)})")
     gdf = gpd.read_file(folder / "walls.gpkg", layer="walls")
-    results = pd.read_csv(folder / "results.csv", dtype={"wall_id": str})
+    results = read_result_csv(folder / "results.csv")
     info = json.loads((folder / "run.json").read_text(encoding="utf-8"))
     walls = pd.DataFrame(gdf.drop(columns="geometry"))
     walls["located"] = walls["located"].astype(bool)

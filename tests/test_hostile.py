@@ -7,10 +7,12 @@ from __future__ import annotations
 import hashlib
 from pathlib import Path
 
+import pandas as pd
 import pytest
 from typer.testing import CliRunner
 
 from screening.cli import EXIT_NOTHING_SCREENED as NONE
+from screening.cli import EXIT_SOME_REJECTED as SOME
 from screening.cli import app
 
 HOSTILE = Path(__file__).resolve().parent / "corpus" / "hostile"
@@ -131,3 +133,80 @@ def test_a_nan_utilisation_or_score_stops_the_run_naming_the_wall() -> None:
     walls.loc[walls["wall_id"] == "GOOD-2", "priority_score"] = float("nan")
     with pytest.raises(ScreeningError, match="priority_score: GOOD-2"):
         refuse_unreported_nan(dataclasses.replace(run, walls=walls))
+
+
+# --- 2. non-finite numbers, spreadsheet cells as shown, ids that look like missing values --------
+
+
+def test_non_finite_numbers_are_row_errors_naming_row_column_and_value(tmp_path: Path) -> None:
+    # before: inf, Infinity and 1e309 were accepted and such walls ranked first as "floating"
+    register = HOSTILE / "non_finite.csv"
+    errors = tmp_path / "errors.csv"
+    result = invoke(["check", register, "--errors", errors], register)
+    assert result.exit_code == SOME, result.output
+    assert "3 of 7 rows can be screened" in flat(result)
+    p = pd.read_csv(errors, keep_default_na=False)
+    p = p[p.severity == "error"]
+    got = {(r.row, r.column, str(r.value)) for r in p.itertuples()}
+    assert got == {
+        (5, "height_m", "inf"),
+        (6, "base_width_m", "Infinity"),
+        (7, "top_width_m", "1e309"),
+        (8, "height_m", "nan"),
+    }
+    assert set(p.loc[p.row < 8, "message"]) == {"expected a finite number (infinity is not a measurement)"}
+
+
+def test_spreadsheet_cells_are_read_as_the_user_sees_them(tmp_path: Path) -> None:
+    # before: 17 became "17.0", a date cell 1970-01-01, #DIV/0! a blank filled by a default, TRUE 1
+    import datetime
+
+    import xlsxwriter
+
+    register = tmp_path / "typed.xlsx"
+    book = xlsxwriter.Workbook(register)
+    sheet = book.add_worksheet("Walls")
+    date = book.add_format({"num_format": "dd/mm/yyyy"})
+    sheet.write_row(
+        0, 0, ["wall_id", "height_m", "base_width_m", "top_width_m", "survey_date", "notes", "surcharge_kpa"]
+    )
+    sheet.write_row(1, 0, [17, 3.0, 2.0, 0.8])
+    sheet.write_datetime(1, 4, datetime.datetime(2026, 5, 1), date)
+    sheet.write_boolean(1, 5, True)
+    sheet.write_row(2, 0, ["W-DIV", 3.0, 2.0, 0.8])
+    sheet.write_formula(2, 6, "=1/0", None, "#DIV/0!")
+    sheet.write_row(3, 0, ["W-BOOL", 3.0, 2.0, 0.8])
+    sheet.write_boolean(3, 6, True)
+    book.close()
+    errors = tmp_path / "errors.csv"
+    result = invoke(["check", register, "--errors", errors], register)
+    assert result.exit_code == SOME, result.output
+    p = pd.read_csv(errors, keep_default_na=False)
+    assert {(r.row, r.column, r.value) for r in p.itertuples() if r.severity == "error"} == {
+        (3, "surcharge_kpa", "#DIV/0!"),  # an error cell, never a blank the 10 kPa default fills
+        (4, "surcharge_kpa", "TRUE"),  # a boolean is not the number 1
+    }
+    from screening.job import screen_file
+
+    walls = screen_file(register).screening.prepared.walls
+    assert list(walls["wall_id"]) == ["17"]
+    assert str(walls["survey_date"].iloc[0].date()) == "2026-05-01"
+    assert walls["notes"].iloc[0] == "TRUE"
+
+
+def test_ids_that_look_like_missing_values_stay_ids_in_compare_and_map(tmp_path: Path) -> None:
+    # before: NA, None, null, N/A and nan collapsed into one blank id; the map could not be redrawn
+    register = HOSTILE / "ids_that_look_missing.csv"
+    out = tmp_path / "out"
+    result = invoke(["run", register, "-o", out, "--no-history"], register)
+    assert result.exit_code == 0, result.output
+    changes = tmp_path / "changes.csv"
+    result = invoke(["compare", out, out, "-o", changes])
+    assert result.exit_code == 0, result.output
+    assert "unchanged 8" in flat(result)
+    ids = set(pd.read_csv(changes, dtype=str, keep_default_na=False)["wall_id"])
+    assert {"NA", "None", "null", "N/A", "nan"} <= ids
+    result = invoke(["map", out])
+    assert result.exit_code == 0, result.output
+    page = (out / "map.html").read_text(encoding="utf-8")
+    assert '"N/A"' in page and '"null"' in page

@@ -9,6 +9,7 @@ import pandas as pd
 
 from screening.io.mapping import ColumnMapping, load_mapping, to_canonical
 from screening.io.readers import RawRegister, read_register
+from screening.io.xlsxcheck import SheetLimits
 
 
 @dataclass(frozen=True)
@@ -23,12 +24,19 @@ class LoadedRegister:
 
 
 def load_register(
-    path: str | Path, *, mapping: str | Path | None = None, sheet: str | int | None = None
+    path: str | Path,
+    *,
+    mapping: str | Path | None = None,
+    sheet: str | int | None = None,
+    limits: SheetLimits | None = None,
 ) -> LoadedRegister:
     """Read a register file and map it onto the canonical columns (read-only)."""
     colmap = load_mapping(mapping)
     raw = read_register(
-        path, sheet=sheet if sheet is not None else colmap.sheet, known_headers=colmap.headers
+        path,
+        sheet=sheet if sheet is not None else colmap.sheet,
+        known_headers=colmap.headers,
+        limits=limits,
     )
     frame, labels, shown = to_canonical(raw, colmap)
     return LoadedRegister(frame, labels, shown, raw, colmap)

@@ -8,6 +8,7 @@ canonical column, so that every message can point at the user's file.
 from __future__ import annotations
 
 import csv
+import datetime as dt
 import io
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -17,6 +18,7 @@ import pandas as pd
 
 from screening import schema
 from screening.errors import RegisterError
+from screening.io.xlsxcheck import SheetLimits, check_sheet_size, error_cells
 
 SPREADSHEETS = (".xlsx", ".xlsm", ".xls", ".ods")
 GIS = (".gpkg", ".geojson", ".json", ".shp")
@@ -53,7 +55,11 @@ class RawRegister:
 
 
 def read_register(
-    path: str | Path, *, sheet: str | int | None = None, known_headers: set[str] | None = None
+    path: str | Path,
+    *,
+    sheet: str | int | None = None,
+    known_headers: set[str] | None = None,
+    limits: SheetLimits | None = None,
 ) -> RawRegister:
     """Read a register file; the file is opened read-only and never written.
 
@@ -67,6 +73,8 @@ def read_register(
     known_headers : set of str, optional
         Headers to look for when finding the header row (canonical names and
         the mapping file's headers).
+    limits : SheetLimits, optional
+        How large a spreadsheet's sheet may be (settings ``max_cells``, ``max_sheet_mb``).
     """
     path = Path(path)
     if not path.exists():
@@ -78,12 +86,21 @@ def read_register(
     if suffix in (".csv", ".txt"):
         return _read_csv(path, known)
     if suffix in SPREADSHEETS:
-        return _read_spreadsheet(path, sheet, known)
+        return _read_spreadsheet(path, sheet, known, limits or SheetLimits())
     if suffix in GIS:
         return _read_gis(path)
     raise RegisterError(
         f"{path}: unsupported file type {suffix or '(none)'}; expected one of {', '.join(SUFFIXES)}"
     )
+
+
+def read_result_csv(path: str | Path) -> pd.DataFrame:
+    """A CSV the tool wrote (walls.csv, results.csv, problems.csv), ids as text.
+
+    Only an empty cell is missing: a wall called ``NA``, ``None``, ``null``, ``N/A`` or ``nan`` keeps
+    its id (pandas would read each as a missing value and the walls would collapse into one).
+    """
+    return pd.read_csv(path, dtype={"wall_id": str}, keep_default_na=False, na_values=[""])
 
 
 def _find_header(grid: pd.DataFrame, known: set[str], path: Path) -> int:
@@ -205,8 +222,11 @@ def _is_number(text: str) -> bool:
     return True
 
 
-def _read_spreadsheet(path: Path, sheet: str | int | None, known: set[str]) -> RawRegister:
-    head = path.read_bytes()[:8]
+def _read_spreadsheet(
+    path: Path, sheet: str | int | None, known: set[str], limits: SheetLimits
+) -> RawRegister:
+    with open(path, "rb") as fh:
+        head = fh.read(8)
     if head.startswith(b"\xd0\xcf\x11\xe0") and path.suffix.lower() != ".xls":
         raise RegisterError(
             f"{path}: the workbook is encrypted (password-protected) or an old .xls saved "
@@ -214,6 +234,7 @@ def _read_spreadsheet(path: Path, sheet: str | int | None, known: set[str]) -> R
         )
     import python_calamine
 
+    check_sheet_size(path, sheet, limits)  # before any cell is read: bombs are refused here
     try:
         book = python_calamine.CalamineWorkbook.from_path(str(path))
     except Exception as exc:  # calamine raises its own types for every broken file
@@ -233,19 +254,54 @@ def _read_spreadsheet(path: Path, sheet: str | int | None, known: set[str]) -> R
     try:
         # python-calamine directly: cells as written ("n/a" stays "n/a", the validator names
         # it), about 2x faster than going through pandas.read_excel (benchmarks/)
-        rows = book.get_sheet_by_name(chosen).to_python()
+        data = book.get_sheet_by_name(chosen)
+        rows, (top, left) = data.to_python(), data.start or (0, 0)
     except Exception as exc:  # a damaged sheet inside a readable workbook
         raise RegisterError(f"{path}: sheet {chosen!r} could not be read ({exc})") from exc
     finally:
         book.close()
     if not rows:
         raise RegisterError(f"{path}: sheet {chosen!r} is empty")
-    grid = pd.DataFrame(rows, dtype=object)
+    grid = cells_as_shown(pd.DataFrame(rows, dtype=object))
+    if path.suffix.lower() in (".xlsx", ".xlsm"):
+        _put_error_cells(grid, error_cells(path, str(chosen)), top, left)
     header = _find_header(grid, known, path)
     frame = _frame_from_grid(grid, header, path)
+    frame["row"] += top  # the grid starts at the first used row of the sheet
     return RawRegister(
-        frame, path, sheet=str(chosen), header_row=header + 1, notes=[f"read sheet {chosen!r}"]
+        frame, path, sheet=str(chosen), header_row=header + 1 + top, notes=[f"read sheet {chosen!r}"]
     )
+
+
+def _as_shown(value: object) -> object:
+    """A typed cell as the user sees it: dates as ISO dates, TRUE/FALSE as words."""
+    if isinstance(value, bool):
+        return "TRUE" if value else "FALSE"
+    if isinstance(value, dt.datetime):
+        return value.date().isoformat() if value.time() == dt.time() else value.isoformat(sep=" ")
+    if isinstance(value, (dt.date, dt.time)):
+        return value.isoformat()
+    if isinstance(value, dt.timedelta):
+        return str(value)
+    return value
+
+
+def cells_as_shown(grid: pd.DataFrame) -> pd.DataFrame:
+    """Dates, times and booleans as text the user would recognise (numbers stay numbers: the
+    preparation writes a whole number 17.0 as "17" where text is expected)."""
+    for col in grid.columns:
+        kind = pd.api.types.infer_dtype(grid[col], skipna=True)
+        if kind not in ("floating", "integer", "string", "empty", "mixed-integer-float"):
+            grid[col] = grid[col].map(_as_shown)
+    return grid
+
+
+def _put_error_cells(grid: pd.DataFrame, cells: list[tuple[int, int, str]], top: int, left: int) -> None:
+    """Put the error values (#DIV/0!) back where the reader left blanks, so they are reported."""
+    for row, col, text in cells:
+        r, c = row - top, col - left
+        if 0 <= r < grid.shape[0] and 0 <= c < grid.shape[1]:
+            grid.iat[r, c] = text
 
 
 def _read_gis(path: Path) -> RawRegister:
