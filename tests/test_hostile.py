@@ -210,3 +210,57 @@ def test_ids_that_look_like_missing_values_stay_ids_in_compare_and_map(tmp_path:
     assert result.exit_code == 0, result.output
     page = (out / "map.html").read_text(encoding="utf-8")
     assert '"N/A"' in page and '"null"' in page
+
+
+# --- 6. spreadsheet bombs: refused from the zip directory and the declared extent ---------------
+
+
+def _xlsx_with_sheet_xml(path: Path, sheet_xml: str) -> None:
+    """A minimal valid .xlsx whose one sheet holds the XML given (made with xlsxwriter, then the
+    sheet replaced)."""
+    import zipfile
+
+    import xlsxwriter
+
+    plain = path.with_suffix(".plain.xlsx")
+    book = xlsxwriter.Workbook(plain)
+    book.add_worksheet("Walls").write_row(0, 0, ["wall_id", "height_m", "base_width_m", "top_width_m"])
+    book.close()
+    with zipfile.ZipFile(plain) as src, zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as dst:
+        for item in src.infolist():
+            data = sheet_xml.encode() if item.filename == "xl/worksheets/sheet1.xml" else src.read(item)
+            dst.writestr(item.filename, data)
+    plain.unlink()
+
+
+SHEET = (
+    '<?xml version="1.0" encoding="UTF-8" standalone="yes"?>'
+    '<worksheet xmlns="http://schemas.openxmlformats.org/spreadsheetml/2006/main">'
+    '<dimension ref="{dim}"/><sheetData>{rows}</sheetData></worksheet>'
+)
+
+
+def test_a_cell_at_the_last_row_and_column_is_refused_before_reading(tmp_path: Path) -> None:
+    # before: a 1.7 KB workbook with one far cell made the reader allocate the whole grid
+    register = tmp_path / "far_cell.xlsx"
+    rows = '<row r="1"><c r="A1" t="inlineStr"><is><t>wall_id</t></is></c></row>'
+    rows += '<row r="1048576"><c r="XFD1048576"><v>1</v></c></row>'
+    _xlsx_with_sheet_xml(register, SHEET.format(dim="A1:XFD1048576", rows=rows))
+    assert register.stat().st_size < 8000  # a few kB
+    result = invoke(["check", register], register)
+    assert result.exit_code == NONE, result.output
+    text = flat(result)
+    assert "1,048,576 rows x 16,384 columns" in text and "max_cells" in text
+
+
+def test_a_sheet_that_inflates_past_the_limit_is_refused(tmp_path: Path) -> None:
+    # before: a 7.7 MB workbook that expands to 2 GB ran past 9.8 GB of memory; here the limit is
+    # set to 1 MB and the sheet expands to about 4 MB (compressed to a few kB)
+    register = tmp_path / "inflates.xlsx"
+    rows = "".join(f'<row r="{i}"><c r="A{i}"><v>1</v></c></row>' for i in range(1, 80_000))
+    _xlsx_with_sheet_xml(register, SHEET.format(dim="A1:A79999", rows=rows))
+    config = tmp_path / "limits.toml"
+    config.write_text("max_sheet_mb = 1\n", encoding="utf-8")
+    result = invoke(["check", register, "-c", config], register, config)
+    assert result.exit_code == NONE, result.output
+    assert "expands to 4 MB, over the limit of 1 MB (setting max_sheet_mb)" in flat(result)
