@@ -251,6 +251,16 @@ def _screen_with_progress(
     return job
 
 
+def _refuse_unsafe_outputs(
+    register: Path, out: Path, history: Path | None, mapping: Path | None, config: Path | None
+) -> None:
+    """Before any work: --out is a folder, and no output (nor the history) replaces an input."""
+    from screening.io.outfolder import refuse_file_as_folder, refuse_overwriting_input, run_targets
+
+    refuse_file_as_folder(out)
+    refuse_overwriting_input([register, mapping, config], run_targets(out, history))
+
+
 @app.command()
 def run(
     register: RegisterArg,
@@ -275,6 +285,7 @@ def run(
     hist = None if no_history else (history or out / "history.gpkg")
     try:
         options.check()
+        _refuse_unsafe_outputs(register, out, hist, mapping, config)
         job = _screen_with_progress(register, out, mapping, sheet, config, options, sheets, hist)
     except ScreeningError as exc:
         raise _fail(exc) from None
@@ -295,9 +306,11 @@ def check(
     ] = None,
 ) -> None:
     """Validate a register without screening it: every problem, row by row."""
+    from screening.io.outfolder import refuse_overwriting_input
     from screening.io.writers import write_csv
 
     try:
+        refuse_overwriting_input([register, mapping, config], [errors_file])
         job = screen_file(register, mapping=mapping, sheet=sheet, config=load_config(config))
     except ScreeningError as exc:
         raise _fail(exc) from None

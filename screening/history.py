@@ -152,6 +152,13 @@ class Recorded:
     """The earlier run with the same input file content and settings, when not stored again."""
 
 
+def _refuse_duplicate_run_id(con: sqlite3.Connection, path: Path, run_id: str) -> None:
+    """Run ids are unique: a second run under one id would mix two runs in every comparison."""
+    if con.execute(f"SELECT 1 FROM {RUNS} WHERE run_id = ? LIMIT 1", (run_id,)).fetchone():
+        con.execute("ROLLBACK")
+        raise ScreeningError(f"{path}: a run {run_id} is already recorded; run ids must be unique")
+
+
 def record_run(
     path: str | Path,
     *,
@@ -186,6 +193,7 @@ def record_run(
         if same:
             con.execute("ROLLBACK")
             return Recorded(run["run_id"], stored=False, same_as=same[0])
+        _refuse_duplicate_run_id(con, path, str(run["run_id"]))
         for c in cols:  # columns added since the file was created (a history of an earlier version)
             if c not in _stored_columns(con):
                 con.execute(f'ALTER TABLE {WALLS} ADD COLUMN "{c}" {_sql_type(c)}')

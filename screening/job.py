@@ -5,6 +5,7 @@ from __future__ import annotations
 import datetime as dt
 import hashlib
 import json
+import secrets
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -35,6 +36,8 @@ class RunInfo:
     mapping_file: str | None = None
     sheet: str | None = None
     notes: list[str] = field(default_factory=list)
+    run_uid: str = field(default_factory=lambda: secrets.token_hex(4))
+    """A random part of the run id: two runs started in the same second never share one."""
 
 
 @dataclass(frozen=True)
@@ -90,7 +93,7 @@ class JobResult:
     @property
     def run_id(self) -> str:
         stamp = self.info.run_time.replace("-", "").replace(":", "").replace("+0000", "")
-        return f"{stamp}-{self.info.input_sha256[:8]}"
+        return f"{stamp}-{self.info.input_sha256[:8]}-{self.info.run_uid}"
 
     @property
     def n_rejected(self) -> int:
@@ -104,6 +107,30 @@ def sha256(path: str | Path) -> str:
         for block in iter(lambda: fh.read(1 << 20), b""):
             digest.update(block)
     return digest.hexdigest()
+
+
+def input_digest(path: str | Path) -> str:
+    """SHA-256 of the register, as a clear error if it cannot be read (deleted, no permission)."""
+    from screening.errors import RegisterError
+
+    try:
+        return sha256(path)
+    except FileNotFoundError as exc:
+        raise RegisterError(f"{path}: no such file") from exc
+    except OSError as exc:
+        raise RegisterError(f"{path}: cannot be read ({exc.strerror or exc})") from exc
+
+
+def refuse_changed_input(path: str | Path, digest: str) -> None:
+    """The hash recorded must be that of the bytes read: refuse a register saved anew mid-read."""
+    from screening.errors import RegisterError
+
+    try:
+        after = sha256(path)
+    except OSError as exc:
+        raise RegisterError(f"{path}: removed or unreadable while it was being read ({exc})") from exc
+    if after != digest:
+        raise RegisterError(f"{path}: the file changed while it was being read; run again once it is saved")
 
 
 def screen_file(
@@ -123,7 +150,9 @@ def screen_file(
 
     config = config or Config()
     limits = SheetLimits(config.max_cells, config.max_sheet_mb)
+    digest = input_digest(register_path)
     loaded = load_register(register_path, mapping=mapping, sheet=sheet, limits=limits)
+    refuse_changed_input(register_path, digest)
     run = evaluate(
         loaded.frame,
         config,
@@ -134,7 +163,7 @@ def screen_file(
     )
     info = RunInfo(
         input_file=Path(register_path).name,
-        input_sha256=sha256(register_path),
+        input_sha256=digest,
         tool_version=__version__,
         run_time=dt.datetime.now(dt.UTC).replace(microsecond=0).isoformat(),
         config=config,

@@ -264,3 +264,80 @@ def test_a_sheet_that_inflates_past_the_limit_is_refused(tmp_path: Path) -> None
     result = invoke(["check", register, "-c", config], register, config)
     assert result.exit_code == NONE, result.output
     assert "expands to 4 MB, over the limit of 1 MB (setting max_sheet_mb)" in flat(result)
+
+
+# --- 4. the input is never an output; run ids are unique; the hash is that of the bytes read ----
+
+
+def _register_in(folder: Path, name: str) -> Path:
+    folder.mkdir(parents=True, exist_ok=True)
+    path = folder / name
+    path.write_bytes((CORPUS / "good.csv").read_bytes())
+    return path
+
+
+@pytest.mark.parametrize("name", ["walls.csv", "results.csv", "problems.csv"])
+def test_run_refuses_an_output_folder_that_would_replace_the_register(tmp_path: Path, name: str) -> None:
+    # before: run results/walls.csv --out results/ replaced the register with the tool's walls.csv
+    register = _register_in(tmp_path / "results", name)
+    result = invoke(["run", register, "-o", tmp_path / "results", "--no-history"], register)
+    assert result.exit_code == NONE, result.output
+    assert "would replace the input" in flat(result)
+    assert sorted(p.name for p in (tmp_path / "results").iterdir()) == [name]  # no work was done
+
+
+def test_run_refuses_a_link_to_the_register_and_a_file_as_out(tmp_path: Path) -> None:
+    register = _register_in(tmp_path / "data", "register.csv")
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "walls.csv").symlink_to(register)
+    result = invoke(["run", register, "-o", out, "--no-history"], register)
+    assert result.exit_code == NONE and "would replace the input" in flat(result), result.output
+    result = invoke(["run", register, "-o", register, "--no-history"], register)
+    assert result.exit_code == NONE and "a file, not a folder" in flat(result), result.output
+
+
+def test_check_refuses_errors_written_over_the_register(tmp_path: Path) -> None:
+    register = _register_in(tmp_path, "register.csv")
+    (tmp_path / "hard.csv").hardlink_to(register)
+    for target in (register, tmp_path / "hard.csv"):
+        result = invoke(["check", register, "--errors", target], register)
+        assert result.exit_code == NONE and "would replace the input" in flat(result), result.output
+
+
+def test_two_runs_in_one_second_get_different_ids_and_the_history_refuses_a_duplicate(tmp_path: Path) -> None:
+    from screening.errors import ScreeningError
+    from screening.history import list_runs
+    from screening.job import record_history, screen_file
+
+    history = tmp_path / "history.gpkg"
+    first = screen_file(CORPUS / "good.csv", history=history)
+    second = screen_file(CORPUS / "good.csv", history=history)
+    second.info.run_time = first.info.run_time  # the same second
+    assert first.run_id != second.run_id
+    record_history(first)
+    twin = screen_file(HOSTILE / "non_finite.csv", history=history)
+    twin.info.run_time, twin.info.run_uid = first.info.run_time, first.info.run_uid
+    twin.info.input_sha256 = first.info.input_sha256[:8] + "0" * 56  # same id, another input
+    with pytest.raises(ScreeningError, match="already recorded; run ids must be unique"):
+        record_history(twin)
+    assert list(list_runs(history)["run_id"]) == [first.run_id]
+
+
+def test_a_register_saved_anew_while_it_is_read_is_refused(tmp_path: Path, monkeypatch) -> None:
+    # before: the hash was taken after screening, so the new file's hash was recorded with the old walls
+    import screening.job as job
+
+    register = _register_in(tmp_path, "register.csv")
+    real = job.load_register
+
+    def load_then_save(path, **kwargs):
+        loaded = real(path, **kwargs)
+        Path(path).write_bytes(Path(path).read_bytes() + b"GOOD-4,3.0,2.0,0.8\n")  # the owner saves
+        return loaded
+
+    monkeypatch.setattr(job, "load_register", load_then_save)
+    from screening.errors import RegisterError
+
+    with pytest.raises(RegisterError, match="changed while it was being read"):
+        job.screen_file(register)
