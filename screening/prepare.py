@@ -244,7 +244,7 @@ def _refuse_text(frame: pd.DataFrame, log: _Log, test: Any, message: str) -> pd.
             continue
         text = frame[col].astype(object)
         if kind not in ("string", "mixed", "mixed-integer"):
-            text = text.where(text.map(lambda v: isinstance(v, str), na_action="ignore").fillna(False))
+            text = text.where(pd.Series([isinstance(v, str) for v in text.to_numpy()], index=text.index))
             text = text.astype(object).where(text.notna(), "")
         hit = test(text).fillna(False).astype(bool)
         if hit.any():

@@ -341,3 +341,27 @@ def test_a_register_saved_anew_while_it_is_read_is_refused(tmp_path: Path, monke
 
     with pytest.raises(RegisterError, match="changed while it was being read"):
         job.screen_file(register)
+
+
+# --- 7. lesser points --------------------------------------------------------------------------
+
+
+def test_csv_outputs_prefix_text_that_starts_like_a_formula(tmp_path: Path) -> None:
+    # OWASP, CSV injection: text starting with = + - @ is prefixed with ' in the CSVs for people
+    import csv
+
+    register = HOSTILE / "formula_text.csv"
+    out = tmp_path / "out"
+    result = invoke(["run", register, "-o", out, "--no-history"], register)
+    assert result.exit_code == 0, result.output
+    with open(out / "walls.csv", newline="", encoding="utf-8") as fh:
+        rows = list(csv.DictReader(fh))
+    assert {r["wall_id"] for r in rows} == {"'=1+2", "GOOD-1"}
+    assert {r["name"] for r in rows} == {"'@SUM(1+1)", "'+cmd|calc"}
+    assert all(not r["margin"].startswith("'") for r in rows)  # numbers stay numbers
+    from screening.io.readers import read_result_csv
+
+    assert set(read_result_csv(out / "walls.csv")["wall_id"]) == {"=1+2", "GOOD-1"}  # read back as written
+    result = invoke(["map", out])  # the map, redrawn from the CSV, still finds the wall
+    assert result.exit_code == 0, result.output
+    assert '"=1+2"' in (out / "map.html").read_text(encoding="utf-8")

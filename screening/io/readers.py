@@ -97,10 +97,15 @@ def read_register(
 def read_result_csv(path: str | Path) -> pd.DataFrame:
     """A CSV the tool wrote (walls.csv, results.csv, problems.csv), ids as text.
 
+    Text that the writer protected against formula injection (``'=...``) is read as it was.
     Only an empty cell is missing: a wall called ``NA``, ``None``, ``null``, ``N/A`` or ``nan`` keeps
     its id (pandas would read each as a missing value and the walls would collapse into one).
     """
-    return pd.read_csv(path, dtype={"wall_id": str}, keep_default_na=False, na_values=[""])
+    frame = pd.read_csv(path, dtype={"wall_id": str}, keep_default_na=False, na_values=[""])
+    for col in frame.columns:  # the ' that screening.io.writers.csv_safe_text put before formulas
+        if frame[col].dtype == object or pd.api.types.is_string_dtype(frame[col]):
+            frame[col] = frame[col].str.replace(r"^'(?='*[=+\-@\t\r])", "", regex=True)
+    return frame
 
 
 def _find_header(grid: pd.DataFrame, known: set[str], path: Path) -> int:

@@ -42,8 +42,36 @@ def write_atomic(target: str | Path, writer: Callable[[Path], object]) -> Path:
 
 
 def write_csv(frame: pd.DataFrame, target: str | Path) -> Path:
-    """CSV with ``inf`` written as such and blanks for missing values."""
+    """CSV with ``inf`` written as such and blanks for missing values; text made safe to open."""
+    frame = csv_safe_text(frame)
     return write_atomic(target, lambda tmp: frame.to_csv(tmp, index=False, encoding="utf-8"))
+
+
+FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+"""What a spreadsheet takes for the start of a formula (OWASP, CSV injection)."""
+FORMULA_PATTERN = r"'*[=+\-@\t\r]"
+
+
+def csv_safe_text(frame: pd.DataFrame) -> pd.DataFrame:
+    """Text cells that start like a formula (= + - @, tab, CR) prefixed with ``'``.
+
+    After the OWASP guidance on CSV injection: a spreadsheet opening the CSV then shows the
+    text and runs nothing. Number columns are left alone (a negative margin stays a number).
+    """
+    out = frame
+    for col in frame.columns:
+        series = frame[col]
+        if series.dtype.kind in "fiubcmM" or isinstance(series.dtype, pd.CategoricalDtype):
+            continue
+        text = series.astype(object)
+        is_text = pd.Series([isinstance(v, str) for v in text.to_numpy()], index=text.index, dtype=bool)
+        # text that already starts with ' before a formula character gets one more, so that
+        # reading back (screening.io.readers.read_result_csv) takes exactly one off
+        risky = is_text & text.where(is_text, "").astype(str).str.match(FORMULA_PATTERN)
+        if risky.any():
+            out = out.copy() if out is frame else out
+            out[col] = text.mask(risky, "'" + text.where(risky, "").astype(str))
+    return out
 
 
 def write_text_atomic(target: str | Path, text: str) -> Path:
