@@ -2,7 +2,9 @@
 
 Exit codes: 0 every row screened; 1 screened, but some rows rejected;
 2 nothing could be screened (unreadable file, no usable rows, required
-columns missing) or the command line was wrong.
+columns missing) or the command line was wrong; 3 screened, but the outputs
+could not be written (read-only folder, full disk): the files written before
+stay as they were or complete, none is half-written.
 """
 
 from __future__ import annotations
@@ -27,6 +29,7 @@ from screening.outputs.sheets import flagged_walls
 EXIT_OK = 0
 EXIT_SOME_REJECTED = 1
 EXIT_NOTHING_SCREENED = 2
+EXIT_WRITE_FAILED = 3
 
 CAUTION = (
     "Screening aid only: results must be reviewed by a qualified engineer; "
@@ -82,6 +85,18 @@ TilesOpt = Annotated[
 def _fail(exc: ScreeningError) -> typer.Exit:
     err.print(f"[bold red]error:[/] {escape(str(exc))}", highlight=False, markup=True)
     return typer.Exit(EXIT_NOTHING_SCREENED)
+
+
+def _write_failed(exc: OSError, out: Path) -> typer.Exit:
+    """A failure while writing (no permission, disk full): one line, exit 3, no traceback."""
+    where = exc.filename or out
+    err.print(
+        f"[bold red]error:[/] could not write the outputs to {escape(str(out))}: "
+        f"{escape(str(where))}: {escape(exc.strerror or str(exc))}",
+        highlight=False,
+        markup=True,
+    )
+    return typer.Exit(EXIT_WRITE_FAILED)
 
 
 def _version(value: bool) -> None:
@@ -289,6 +304,8 @@ def run(
         job = _screen_with_progress(register, out, mapping, sheet, config, options, sheets, hist)
     except ScreeningError as exc:
         raise _fail(exc) from None
+    except OSError as exc:
+        raise _write_failed(exc, out) from None
     _print_problems(job)
     _print_summary(job)
     if job.n_rejected:

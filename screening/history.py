@@ -136,7 +136,24 @@ def _stored_columns(con: sqlite3.Connection) -> set[str]:
     return {row[1] for row in con.execute(f"PRAGMA table_info({WALLS})")}
 
 
+def _refuse_not_a_history(path: Path) -> None:
+    """A history is a GeoPackage (an SQLite file) with our tables: say so if it is anything else."""
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(16)
+    except FileNotFoundError:
+        return  # created on first use
+    except OSError as exc:
+        raise ScreeningError(f"{path}: the history file cannot be read ({exc.strerror or exc})") from exc
+    if head and head != b"SQLite format 3\x00":
+        raise ScreeningError(
+            f"{path}: not a wallscreen history (not a GeoPackage/SQLite file); give another --history "
+            "or move the file away"
+        )
+
+
 def _connect(path: Path) -> sqlite3.Connection:
+    _refuse_not_a_history(Path(path))
     con = sqlite3.connect(path, timeout=60.0, isolation_level=None)
     con.execute("PRAGMA busy_timeout = 60000")
     return con

@@ -365,3 +365,56 @@ def test_csv_outputs_prefix_text_that_starts_like_a_formula(tmp_path: Path) -> N
     result = invoke(["map", out])  # the map, redrawn from the CSV, still finds the wall
     assert result.exit_code == 0, result.output
     assert '"=1+2"' in (out / "map.html").read_text(encoding="utf-8")
+
+
+# --- 5. crashes become one-line errors with a documented exit code ------------------------------
+
+BROKEN = [
+    ("ragged_rows.csv", "line 3 has 6 cells where the lines above have 4"),
+    ("unclosed_quote.csv", "a quote opened on line 3 is never closed"),
+]
+
+
+@pytest.mark.parametrize(("name", "words"), BROKEN, ids=[b[0] for b in BROKEN])
+def test_a_broken_csv_is_one_line_naming_the_line(name: str, words: str) -> None:
+    # before: a pandas traceback and exit 1 ("screened, some rows rejected")
+    register = HOSTILE / name
+    result = invoke(["check", register], register)
+    assert result.exit_code == NONE, result.output
+    assert words in flat(result) and name in flat(result)
+    assert len(result.output.strip().splitlines()) <= 2
+
+
+def test_a_history_that_is_not_a_history_is_named(tmp_path: Path) -> None:
+    register = CORPUS / "good.csv"
+    history = tmp_path / "history.gpkg"
+    history.write_text("garbage", encoding="utf-8")
+    result = invoke(["run", register, "-o", tmp_path / "out", "--history", history], register, history)
+    assert result.exit_code == NONE, result.output
+    assert "not a wallscreen history" in flat(result)
+
+
+def test_a_full_disk_is_exit_3_and_leaves_the_earlier_good_file(tmp_path: Path, monkeypatch) -> None:
+    import errno
+    import os
+
+    import screening.outputs.geopackage as geopackage
+    from screening.cli import EXIT_WRITE_FAILED
+    from screening.io.writers import atomic_path
+
+    register = CORPUS / "good.csv"
+    out = tmp_path / "out"
+    assert invoke(["run", register, "-o", out, "--no-history"], register).exit_code == 0
+    before = digest(out / "walls.gpkg")
+
+    def disk_full(walls, geometry, target):
+        with atomic_path(target) as tmp:
+            tmp.write_bytes(b"half a GeoPackage")
+            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), str(tmp))
+
+    monkeypatch.setattr(geopackage, "write_geopackage", disk_full)
+    result = invoke(["run", register, "-o", out, "--no-history"], register)
+    assert result.exit_code == EXIT_WRITE_FAILED, result.output
+    assert "could not write the outputs" in flat(result) and "No space left on device" in flat(result)
+    assert digest(out / "walls.gpkg") == before  # the earlier good file stands
+    assert not list(out.glob(".*.part*"))  # no temporary file left behind

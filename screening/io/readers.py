@@ -10,6 +10,7 @@ from __future__ import annotations
 import csv
 import datetime as dt
 import io
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -180,14 +181,7 @@ def _read_csv(path: Path, known: set[str]) -> RawRegister:
         delimiter = ","
     # decimal commas go with a semicolon (or tab) delimiter
     decimal = "," if delimiter in ";\t|" and _looks_decimal_comma(sample, delimiter) else "."
-    grid = pd.read_csv(
-        io.StringIO(text),
-        sep=delimiter,
-        header=None,
-        dtype=str,
-        keep_default_na=False,
-        skip_blank_lines=False,
-    )
+    grid = _parse_csv(text, delimiter, path)
     header = _find_header(grid, known, path)
     frame = _frame_from_grid(grid, header, path)
     # only columns holding a comma can need it: decimal commas, or thousands separators
@@ -203,6 +197,36 @@ def _read_csv(path: Path, known: set[str]) -> RawRegister:
             frame[col] = fix(s)
     notes = [f"read as CSV: encoding {encoding}, delimiter {delimiter!r}, decimal {decimal!r}"]
     return RawRegister(frame, path, header_row=header + 1, notes=notes)
+
+
+def _parse_csv(text: str, delimiter: str, path: Path) -> pd.DataFrame:
+    """Every cell as text; a ragged row or an unclosed quote is one clear error naming the line."""
+    try:
+        return pd.read_csv(
+            io.StringIO(text),
+            sep=delimiter,
+            header=None,
+            dtype=str,
+            keep_default_na=False,
+            skip_blank_lines=False,
+        )
+    except pd.errors.ParserError as exc:
+        message = str(exc)
+        ragged = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", message)
+        if ragged:
+            want, line, saw = ragged.groups()
+            raise RegisterError(
+                f"{path}: line {line} has {saw} cells where the lines above have {want} "
+                f"(a {delimiter!r} inside a cell that is not in quotes?); quote the cell or remove "
+                "the extra cells"
+            ) from exc
+        unclosed = re.search(r"EOF inside string starting at row (\d+)", message)
+        if unclosed:
+            raise RegisterError(
+                f"{path}: a quote opened on line {int(unclosed.group(1)) + 1} is never closed; "
+                'close it (") or remove it'
+            ) from exc
+        raise RegisterError(f"{path}: not a readable CSV file ({message.strip()})") from exc
 
 
 def _decimal_comma(s: pd.Series) -> pd.Series:
