@@ -67,6 +67,10 @@ MappingOpt = Annotated[
     Path | None, typer.Option("--mapping", "-m", help="TOML file mapping your headers, units and codes")
 ]
 SheetOpt = Annotated[str | None, typer.Option(help="Sheet name or 0-based index (spreadsheets)")]
+CrsOpt = Annotated[
+    str | None,
+    typer.Option("--crs", help="CRS of easting/northing and of a GIS layer without one, e.g. EPSG:27700"),
+]
 ConfigOpt = Annotated[Path | None, typer.Option("--config", "-c", help="TOML file of settings")]
 AssetsUrlOpt = Annotated[
     str | None,
@@ -227,6 +231,7 @@ def _screen_with_progress(
     options: MapOptions | None = None,
     sheets: bool = False,
     history: Path | None = None,
+    crs: str | None = None,
 ) -> JobResult:
     """Screen and write; a progress bar for registers large enough to wait for."""
     from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
@@ -249,6 +254,7 @@ def _screen_with_progress(
             config=cfg,
             history=history,
             progress=lambda name: bar.update(task, description=name),
+            crs=crs,
         )
         if len(job.walls) == 0:
             _print_problems(job)
@@ -294,6 +300,7 @@ def run(
         typer.Option("--history", help="Run history GeoPackage [default: OUT/history.gpkg]"),
     ] = None,
     no_history: Annotated[bool, typer.Option("--no-history", help="Keep no run history")] = False,
+    crs: CrsOpt = None,
 ) -> None:
     """Screen every wall in the drained, blocked and surveyed cases and write the outputs."""
     options = MapOptions(map_assets_url, map_assets_dir, map_tiles)
@@ -301,7 +308,7 @@ def run(
     try:
         options.check()
         _refuse_unsafe_outputs(register, out, hist, mapping, config)
-        job = _screen_with_progress(register, out, mapping, sheet, config, options, sheets, hist)
+        job = _screen_with_progress(register, out, mapping, sheet, config, options, sheets, hist, crs)
     except ScreeningError as exc:
         raise _fail(exc) from None
     except OSError as exc:
@@ -321,6 +328,7 @@ def check(
     errors_file: Annotated[
         Path | None, typer.Option("--errors", help="Write the problems to this CSV")
     ] = None,
+    crs: CrsOpt = None,
 ) -> None:
     """Validate a register without screening it: every problem, row by row."""
     from screening.io.outfolder import refuse_overwriting_input
@@ -328,7 +336,7 @@ def check(
 
     try:
         refuse_overwriting_input([register, mapping, config], [errors_file])
-        job = screen_file(register, mapping=mapping, sheet=sheet, config=load_config(config))
+        job = screen_file(register, mapping=mapping, sheet=sheet, config=load_config(config), crs=crs)
     except ScreeningError as exc:
         raise _fail(exc) from None
     _print_problems(job, limit=50)

@@ -141,6 +141,7 @@ def screen_file(
     config: Config | None = None,
     history: str | Path | None = None,
     progress: Progress | None = None,
+    crs: str | None = None,
 ) -> JobResult:
     """Load, screen and locate a register file, without writing anything.
 
@@ -151,7 +152,7 @@ def screen_file(
     config = config or Config()
     limits = SheetLimits(config.max_cells, config.max_sheet_mb)
     digest = input_digest(register_path)
-    loaded = load_register(register_path, mapping=mapping, sheet=sheet, limits=limits)
+    loaded = load_register(register_path, mapping=mapping, sheet=sheet, limits=limits, crs=crs)
     refuse_changed_input(register_path, digest)
     run = evaluate(
         loaded.frame,

@@ -418,3 +418,50 @@ def test_a_full_disk_is_exit_3_and_leaves_the_earlier_good_file(tmp_path: Path, 
     assert "could not write the outputs" in flat(result) and "No space left on device" in flat(result)
     assert digest(out / "walls.gpkg") == before  # the earlier good file stands
     assert not list(out.glob(".*.part*"))  # no temporary file left behind
+
+
+# --- 3. coordinates range-checked on every path; a CRS is never guessed -------------------------
+
+
+def test_locations_are_checked_on_every_path_and_only_the_rows_needing_a_crs_wait_for_it(
+    tmp_path: Path,
+) -> None:
+    # before: an easting with two extra zeros reprojected to infinity and no wall was drawn
+    # (exit 0); POINT (nan nan) crashed the map; easting/northing without a CRS stopped the run
+    register = HOSTILE / "coordinates.csv"
+    for crs, unmapped in (
+        (None, {"GOOD-2", "GOOD-3", "GOOD-4", "GOOD-5"}),
+        ("EPSG:27700", {"GOOD-3", "GOOD-4", "GOOD-5"}),
+    ):
+        out = tmp_path / str(crs).replace(":", "")
+        args = ["run", register, "-o", out, "--no-history", *(["--crs", crs] if crs else [])]
+        result = invoke(args, register)
+        assert result.exit_code == 0, result.output  # every wall screened, some not mapped
+        walls = pd.read_csv(out / "walls.csv")
+        assert len(walls) == 5
+        assert set(walls.loc[~walls["located"], "wall_id"]) == unmapped
+        p = pd.read_csv(out / "problems.csv", keep_default_na=False)
+        messages = dict(zip(p["wall_id"], p["message"], strict=True))
+        assert "outside the area of use of EPSG:27700" in messages.get("GOOD-3", "") or crs is None
+        assert "pass --crs EPSG:xxxx" in messages.get("GOOD-2", "") or crs is not None
+        assert "latitude -90 to 90" in messages["GOOD-4"] and "latitude -90 to 90" in messages["GOOD-5"]
+    # the British National Grid point (412000, 425000) lies near 53.7° N, 1.8° W (EPSG:27700's area)
+    gdf = __import__("geopandas").read_file(tmp_path / "EPSG27700" / "walls.gpkg")
+    point = gdf.loc[gdf["wall_id"] == "GOOD-2", "geometry"].iloc[0]
+    assert abs(point.y - 53.7) < 0.1 and abs(point.x + 1.8) < 0.2
+
+
+def test_a_gis_layer_without_a_crs_is_refused_unless_one_is_given(tmp_path: Path) -> None:
+    import geopandas as gpd
+    import shapely
+
+    register = tmp_path / "no_crs.gpkg"
+    frame = pd.read_csv(CORPUS / "good.csv").drop(columns=["lat", "lon"])
+    points = shapely.points([412000, 412100, 412200], [425000, 425100, 425200])
+    gpd.GeoDataFrame(frame, geometry=points, crs=None).to_file(register, engine="pyogrio")
+    result = invoke(["check", register], register)
+    assert result.exit_code == NONE, result.output
+    assert "the layer has no CRS" in flat(result) and "--crs" in flat(result)
+    result = invoke(["check", register, "--crs", "EPSG:27700"], register)
+    assert result.exit_code == 0, result.output
+    assert "3 of 3 rows can be screened" in flat(result)

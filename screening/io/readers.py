@@ -61,6 +61,7 @@ def read_register(
     sheet: str | int | None = None,
     known_headers: set[str] | None = None,
     limits: SheetLimits | None = None,
+    crs: str | None = None,
 ) -> RawRegister:
     """Read a register file; the file is opened read-only and never written.
 
@@ -89,7 +90,7 @@ def read_register(
     if suffix in SPREADSHEETS:
         return _read_spreadsheet(path, sheet, known, limits or SheetLimits())
     if suffix in GIS:
-        return _read_gis(path)
+        return _read_gis(path, crs)
     raise RegisterError(
         f"{path}: unsupported file type {suffix or '(none)'}; expected one of {', '.join(SUFFIXES)}"
     )
@@ -333,13 +334,23 @@ def _put_error_cells(grid: pd.DataFrame, cells: list[tuple[int, int, str]], top:
             grid.iat[r, c] = text
 
 
-def _read_gis(path: Path) -> RawRegister:
+def _read_gis(path: Path, given_crs: str | None = None) -> RawRegister:
     import geopandas as gpd
 
     try:
         gdf = gpd.read_file(path, engine="pyogrio")
     except Exception as exc:  # pyogrio raises DataSourceError and friends
         raise RegisterError(f"{path}: not a readable GIS layer ({exc})") from exc
+    if gdf.crs is None:
+        if not given_crs:
+            raise RegisterError(
+                f"{path}: the layer has no CRS, so its coordinates could be metres or degrees; "
+                "pass --crs EPSG:xxxx (or [register] crs in the mapping file)"
+            )
+        try:
+            gdf = gdf.set_crs(given_crs)
+        except Exception as exc:  # pyproj's CRSError
+            raise RegisterError(f"unknown CRS {given_crs!r}: {exc}") from exc
     crs = gdf.crs.to_string() if gdf.crs is not None else None
     if crs is not None and gdf.crs is not None and not gdf.crs.equals("EPSG:4326"):
         gdf = gdf.to_crs("EPSG:4326")
