@@ -10,6 +10,7 @@ stay as they were or complete, none is half-written.
 from __future__ import annotations
 
 import json
+import re
 from pathlib import Path
 from typing import Annotated
 
@@ -17,7 +18,7 @@ import pandas as pd
 import typer
 import typer.core
 from rich.console import Console
-from rich.markup import escape
+from rich.markup import escape as _rich_escape
 from rich.table import Table
 
 from screening import __version__
@@ -46,6 +47,15 @@ def _no_type_for_flags(self: typer.core.TyperOption, ctx: typer.Context) -> str 
 
 
 typer.core.TyperOption.display_type_rich = _no_type_for_flags  # type: ignore[method-assign,assignment]
+
+
+_CONTROL = re.compile(r"[\x00-\x08\x0b-\x1f\x7f-\x9f]")
+
+
+def escape(text: str) -> str:
+    """Register text for the terminal: rich markup escaped, control characters (ESC[2J clears
+    the screen) removed."""
+    return _rich_escape(_CONTROL.sub("", text))
 
 
 def plural(n: int, word: str, words: str | None = None) -> str:

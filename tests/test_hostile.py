@@ -465,3 +465,25 @@ def test_a_gis_layer_without_a_crs_is_refused_unless_one_is_given(tmp_path: Path
     result = invoke(["check", register, "--crs", "EPSG:27700"], register)
     assert result.exit_code == 0, result.output
     assert "3 of 3 rows can be screened" in flat(result)
+
+
+def test_escape_sequences_never_reach_the_terminal_and_the_row_is_rejected() -> None:
+    # before: ESC[2J in an id cleared the screen
+    register = HOSTILE / "escape_sequences.csv"
+    result = invoke(["check", register], register)
+    assert result.exit_code == SOME, result.output
+    assert "\x1b" not in result.output
+    assert "W[2J-1" in flat(result) and "control character" in flat(result)
+    assert "2 of 3 rows can be screened" in flat(result)
+
+
+def test_a_nul_byte_after_the_first_4_kb_is_a_row_error(tmp_path: Path) -> None:
+    # before: NUL bytes past the first 4 KB were taken into ids
+    register = HOSTILE / "nul_after_4k.csv"
+    assert register.read_bytes().index(b"\x00") > 4096
+    errors = tmp_path / "errors.csv"
+    result = invoke(["check", register, "--errors", errors], register)
+    assert result.exit_code == SOME, result.output
+    p = pd.read_csv(errors, keep_default_na=False)
+    assert list(p["row"]) == [122] and list(p["column"]) == ["wall_id"]
+    assert "NUL byte" in p["message"].iloc[0]
