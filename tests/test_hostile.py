@@ -487,3 +487,27 @@ def test_a_nul_byte_after_the_first_4_kb_is_a_row_error(tmp_path: Path) -> None:
     p = pd.read_csv(errors, keep_default_na=False)
     assert list(p["row"]) == [122] and list(p["column"]) == ["wall_id"]
     assert "NUL byte" in p["message"].iloc[0]
+
+
+def test_outputs_are_flushed_before_the_rename_and_the_folder_after(tmp_path: Path, monkeypatch) -> None:
+    # before: renamed into place but not flushed, so a power cut could leave an empty file
+    import os
+
+    import screening.io.writers as writers
+
+    calls: list[str] = []
+    real_fsync, real_replace = os.fsync, os.replace
+
+    def fsync(fd: int) -> None:
+        calls.append("fsync folder" if os.path.isdir(f"/proc/self/fd/{fd}") else "fsync file")
+        real_fsync(fd)
+
+    def replace(a, b) -> None:
+        calls.append("rename")
+        real_replace(a, b)
+
+    monkeypatch.setattr(writers.os, "fsync", fsync)
+    monkeypatch.setattr(writers.os, "replace", replace)
+    writers.write_csv(pd.DataFrame({"wall_id": ["W1"]}), tmp_path / "walls.csv")
+    assert calls == ["fsync file", "rename", "fsync folder"]
+    assert (tmp_path / "walls.csv").read_text(encoding="utf-8") == "wall_id\nW1\n"

@@ -28,10 +28,35 @@ def atomic_path(target: str | Path) -> Iterator[Path]:
         umask = os.umask(0)
         os.umask(umask)
         os.chmod(tmp_path, 0o666 & ~umask)
+        fsync_file(tmp_path)  # the bytes on disk before the name: a power cut leaves no empty file
         os.replace(tmp_path, target)
+        fsync_folder(target.parent)  # and the rename itself
     finally:
         if tmp_path.exists():
             tmp_path.unlink()
+
+
+def fsync_file(path: Path) -> None:
+    """Flush a written file to the disk (not only to the system's cache)."""
+    fd = os.open(path, os.O_RDONLY)
+    try:
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+
+
+def fsync_folder(folder: Path) -> None:
+    """Flush a folder's entries (a rename into it) to the disk, where the system allows it."""
+    try:
+        fd = os.open(folder, os.O_RDONLY)
+    except OSError:
+        return  # e.g. Windows: folders cannot be opened; the rename is still atomic
+    try:
+        os.fsync(fd)
+    except OSError:
+        pass  # some file systems refuse fsync on a folder
+    finally:
+        os.close(fd)
 
 
 def write_atomic(target: str | Path, writer: Callable[[Path], object]) -> Path:
