@@ -511,3 +511,24 @@ def test_outputs_are_flushed_before_the_rename_and_the_folder_after(tmp_path: Pa
     writers.write_csv(pd.DataFrame({"wall_id": ["W1"]}), tmp_path / "walls.csv")
     assert calls == ["fsync file", "rename", "fsync folder"]
     assert (tmp_path / "walls.csv").read_text(encoding="utf-8") == "wall_id\nW1\n"
+
+
+@pytest.mark.parametrize(
+    ("name", "note"),
+    [
+        ("utf8_with_a_cp1252_byte.csv", "utf-8 with 1 stray byte(s) read as cp1252"),
+        ("utf16_unicode_text.txt", "encoding utf-16"),
+    ],
+)
+def test_a_stray_cp1252_byte_and_utf16_text_are_read_and_named(name: str, note: str) -> None:
+    # before: one cp1252 byte turned every UTF-8 name into mojibake; UTF-16 was "not a text file"
+    from screening.job import screen_file
+
+    register = HOSTILE / name
+    before = digest(register)
+    job = screen_file(register)
+    names = list(job.screening.prepared.walls["name"])
+    assert names[0] == "Rue de l'Église"  # the UTF-8 is kept
+    assert names[1] in ("Café Bank", "Mill Bank")
+    assert any(note in n for n in job.info.notes)
+    assert digest(register) == before

@@ -159,8 +159,50 @@ def _spaces(cells: np.ndarray) -> np.ndarray:
     return np.vectorize(lambda v: isinstance(v, str) and not v.strip(), otypes=[bool])(cells)
 
 
+def _decode_unicode_text(data: bytes) -> tuple[str, str] | None:
+    """UTF-16 text (Excel's "Unicode text", with its byte order mark), or None."""
+    if data[:2] in (b"\xff\xfe", b"\xfe\xff"):
+        try:
+            return data.decode("utf-16"), "utf-16"
+        except UnicodeDecodeError:
+            return None
+    return None
+
+
+def _decode_mostly_utf8(data: bytes) -> tuple[str, str] | None:
+    """UTF-8 text with a few bytes of another encoding (a cell pasted from an older file): the
+    UTF-8 is kept and only the stray bytes are read as cp1252; None if the text holds no UTF-8."""
+    parts, i, stray, good = [], 0, 0, False
+    while True:
+        try:
+            chunk = data[i:].decode("utf-8")
+        except UnicodeDecodeError as exc:
+            chunk = data[i : i + exc.start].decode("utf-8")
+            parts += [chunk, data[i + exc.start : i + exc.end].decode("cp1252", errors="replace")]
+            good |= any(ord(c) > 127 for c in chunk)
+            stray += 1
+            i += exc.end
+            continue
+        parts.append(chunk)
+        good |= any(ord(c) > 127 for c in chunk)
+        break
+    if not good:
+        return None
+    return "".join(parts), f"utf-8 with {stray} stray byte(s) read as cp1252"
+
+
 def _decode(data: bytes) -> tuple[str, str]:
-    for encoding in ("utf-8-sig", "cp1252", "latin-1"):
+    found = _decode_unicode_text(data)
+    if found is not None:
+        return found
+    try:
+        return data.decode("utf-8-sig"), "utf-8-sig"
+    except UnicodeDecodeError:
+        pass
+    found = _decode_mostly_utf8(data)
+    if found is not None:
+        return found
+    for encoding in ("cp1252", "latin-1"):
         try:
             return data.decode(encoding), encoding
         except UnicodeDecodeError:
@@ -172,7 +214,7 @@ def _read_csv(path: Path, known: set[str]) -> RawRegister:
     data = path.read_bytes()
     if not data.strip():
         raise RegisterError(f"{path}: the file is empty")
-    if b"\x00" in data[:4096] or data[:4] == b"PK\x03\x04":
+    if (b"\x00" in data[:4096] and _decode_unicode_text(data) is None) or data[:4] == b"PK\x03\x04":
         raise RegisterError(f"{path}: not a text file (is it a spreadsheet with the wrong name?)")
     text, encoding = _decode(data)
     sample = text[:65536]
