@@ -72,6 +72,24 @@ def locate(walls: pd.DataFrame, crs: str | None = None) -> tuple[np.ndarray, pd.
     east = walls["easting"].to_numpy(dtype=float) if "easting" in walls else np.full(n, np.nan)
     north = walls["northing"].to_numpy(dtype=float) if "northing" in walls else np.full(n, np.nan)
     use = need & np.isfinite(east) & np.isfinite(north)
+    problems += _locate_grid(walls, east, north, use, crs, geom)
+    problems = [p for p in problems if len(p)]
+    return geom, (
+        pd.concat(problems, ignore_index=True) if problems else _warn(walls, np.zeros(n, bool), "", None, "")
+    )
+
+
+def _locate_grid(
+    walls: pd.DataFrame,
+    east: np.ndarray,
+    north: np.ndarray,
+    use: np.ndarray,
+    crs: str | None,
+    geom: np.ndarray,
+) -> list[pd.DataFrame]:
+    """Easting/northing of the rows in ``use`` into ``geom`` (WGS84); warnings for the rest."""
+    n = len(walls)
+    problems: list[pd.DataFrame] = []
     if use.any() and not crs:
         # only these rows need a CRS: they are screened, listed, not mapped; lat/lon rows go on
         problems.append(
@@ -101,10 +119,7 @@ def locate(walls: pd.DataFrame, crs: str | None = None) -> tuple[np.ndarray, pd.
             )
         )
         geom[sel[inside]] = shapely.points(x[inside], y[inside])
-    problems = [p for p in problems if len(p)]
-    return geom, (
-        pd.concat(problems, ignore_index=True) if problems else _warn(walls, np.zeros(n, bool), "", None, "")
-    )
+    return problems
 
 
 def on_the_globe(geoms: np.ndarray) -> np.ndarray:
