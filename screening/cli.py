@@ -2,12 +2,15 @@
 
 Exit codes: 0 every row screened; 1 screened, but some rows rejected;
 2 nothing could be screened (unreadable file, no usable rows, required
-columns missing) or the command line was wrong.
+columns missing) or the command line was wrong; 3 screened, but the outputs
+could not be written (read-only folder, full disk): the files written before
+stay as they were or complete, none is half-written.
 """
 
 from __future__ import annotations
 
 import json
+import re
 from pathlib import Path
 from typing import Annotated
 
@@ -15,7 +18,7 @@ import pandas as pd
 import typer
 import typer.core
 from rich.console import Console
-from rich.markup import escape
+from rich.markup import escape as _rich_escape
 from rich.table import Table
 
 from screening import __version__
@@ -27,6 +30,7 @@ from screening.outputs.sheets import flagged_walls
 EXIT_OK = 0
 EXIT_SOME_REJECTED = 1
 EXIT_NOTHING_SCREENED = 2
+EXIT_WRITE_FAILED = 3
 
 CAUTION = (
     "Screening aid only: results must be reviewed by a qualified engineer; "
@@ -43,6 +47,15 @@ def _no_type_for_flags(self: typer.core.TyperOption, ctx: typer.Context) -> str 
 
 
 typer.core.TyperOption.display_type_rich = _no_type_for_flags  # type: ignore[method-assign,assignment]
+
+
+_CONTROL = re.compile(r"[\x00-\x08\x0b-\x1f\x7f-\x9f]")
+
+
+def escape(text: str) -> str:
+    """Register text for the terminal: rich markup escaped, control characters (ESC[2J clears
+    the screen) removed."""
+    return _rich_escape(_CONTROL.sub("", text))
 
 
 def plural(n: int, word: str, words: str | None = None) -> str:
@@ -64,6 +77,10 @@ MappingOpt = Annotated[
     Path | None, typer.Option("--mapping", "-m", help="TOML file mapping your headers, units and codes")
 ]
 SheetOpt = Annotated[str | None, typer.Option(help="Sheet name or 0-based index (spreadsheets)")]
+CrsOpt = Annotated[
+    str | None,
+    typer.Option("--crs", help="CRS of easting/northing and of a GIS layer without one, e.g. EPSG:27700"),
+]
 ConfigOpt = Annotated[Path | None, typer.Option("--config", "-c", help="TOML file of settings")]
 AssetsUrlOpt = Annotated[
     str | None,
@@ -82,6 +99,18 @@ TilesOpt = Annotated[
 def _fail(exc: ScreeningError) -> typer.Exit:
     err.print(f"[bold red]error:[/] {escape(str(exc))}", highlight=False, markup=True)
     return typer.Exit(EXIT_NOTHING_SCREENED)
+
+
+def _write_failed(exc: OSError, out: Path) -> typer.Exit:
+    """A failure while writing (no permission, disk full): one line, exit 3, no traceback."""
+    where = exc.filename or out
+    err.print(
+        f"[bold red]error:[/] could not write the outputs to {escape(str(out))}: "
+        f"{escape(str(where))}: {escape(exc.strerror or str(exc))}",
+        highlight=False,
+        markup=True,
+    )
+    return typer.Exit(EXIT_WRITE_FAILED)
 
 
 def _version(value: bool) -> None:
@@ -249,6 +278,7 @@ def _screen_with_progress(
     options: MapOptions | None = None,
     sheets: bool = False,
     history: Path | None = None,
+    crs: str | None = None,
 ) -> JobResult:
     """Screen and write; a progress bar for registers large enough to wait for."""
     from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
@@ -271,6 +301,7 @@ def _screen_with_progress(
             config=cfg,
             history=history,
             progress=lambda name: bar.update(task, description=name),
+            crs=crs,
         )
         if len(job.walls) == 0:
             _print_problems(job)
@@ -286,6 +317,16 @@ def _screen_with_progress(
                 sheet_ids=flagged_walls(job.screening.results) if sheets else None,
             )
     return job
+
+
+def _refuse_unsafe_outputs(
+    register: Path, out: Path, history: Path | None, mapping: Path | None, config: Path | None
+) -> None:
+    """Before any work: --out is a folder, and no output (nor the history) replaces an input."""
+    from screening.io.outfolder import refuse_file_as_folder, refuse_overwriting_input, run_targets
+
+    refuse_file_as_folder(out)
+    refuse_overwriting_input([register, mapping, config], run_targets(out, history))
 
 
 @app.command()
@@ -306,15 +347,19 @@ def run(
         typer.Option("--history", help="Run history GeoPackage [default: OUT/history.gpkg]"),
     ] = None,
     no_history: Annotated[bool, typer.Option("--no-history", help="Keep no run history")] = False,
+    crs: CrsOpt = None,
 ) -> None:
     """Screen every wall in the drained, blocked and surveyed cases and write the outputs."""
     options = MapOptions(map_assets_url, map_assets_dir, map_tiles)
     hist = None if no_history else (history or out / "history.gpkg")
     try:
         options.check()
-        job = _screen_with_progress(register, out, mapping, sheet, config, options, sheets, hist)
+        _refuse_unsafe_outputs(register, out, hist, mapping, config)
+        job = _screen_with_progress(register, out, mapping, sheet, config, options, sheets, hist, crs)
     except ScreeningError as exc:
         raise _fail(exc) from None
+    except OSError as exc:
+        raise _write_failed(exc, out) from None
     _print_problems(job)
     _print_summary(job)
     if job.n_rejected:
@@ -330,12 +375,15 @@ def check(
     errors_file: Annotated[
         Path | None, typer.Option("--errors", help="Write the problems to this CSV")
     ] = None,
+    crs: CrsOpt = None,
 ) -> None:
     """Validate a register without screening it: every problem, row by row."""
+    from screening.io.outfolder import refuse_overwriting_input
     from screening.io.writers import write_csv
 
     try:
-        job = screen_file(register, mapping=mapping, sheet=sheet, config=load_config(config))
+        refuse_overwriting_input([register, mapping, config], [errors_file])
+        job = screen_file(register, mapping=mapping, sheet=sheet, config=load_config(config), crs=crs)
     except ScreeningError as exc:
         raise _fail(exc) from None
     _print_problems(job, limit=50)
@@ -429,6 +477,7 @@ def compare(
 
     from screening.history import compare as compare_runs
     from screening.history import list_runs, run_walls
+    from screening.io.readers import read_result_csv
     from screening.io.writers import write_csv
 
     try:
@@ -454,12 +503,12 @@ def compare(
             for folder in (first, second):
                 if not (folder / "walls.csv").exists():
                     raise ScreeningError(f"{folder}: no walls.csv (not a wallscreen result folder)")
-            before = pd.read_csv(first / "walls.csv", dtype={"wall_id": str})
-            after = pd.read_csv(second / "walls.csv", dtype={"wall_id": str})
+            before = read_result_csv(first / "walls.csv")
+            after = read_result_csv(second / "walls.csv")
             problems = second / "problems.csv"
             rejected = []
             if problems.exists():
-                p = pd.read_csv(problems, dtype={"wall_id": str})
+                p = read_result_csv(problems)
                 rejected = list(p.loc[p["severity"] == "error", "wall_id"].dropna())
             label = f"{first} → {second}"
         else:

@@ -222,6 +222,11 @@ class Config:
     """SD of the one factor on B, t and f, by ``dimensions_source`` (blank reads recorded)."""
     samples_chunk: int = 200_000
     """Wall-draws evaluated per pass of the engine (bounds the working memory)."""
+    # --- reading spreadsheets: a sheet over these is refused before any cell is read
+    max_cells: int = 2_000_000
+    """Cells a sheet may span (rows x columns of its extent, stray far cells included)."""
+    max_sheet_mb: float = 200.0
+    """Uncompressed size a sheet (and the shared strings) may have [MB]."""
     # --- run
     chunk_size: int = 20_000
     """Walls screened per pass; larger registers go through the engine in chunks, which bounds
@@ -334,6 +339,8 @@ NUMBER_RULES: Mapping[str, Rule] = _frozen(
         "condition_default": Rule(1, 5, "a condition rating from 1 to 5"),
         "workbook_full_results_limit": Rule(0, 1_048_000, "a whole number of walls from 0 to 1,048,000"),
         "chunk_size": Rule(1, 10_000_000, "a whole number of walls from 1 to 10,000,000"),
+        "max_cells": Rule(1, 1_048_576 * 16_384, "a whole number of cells above 0"),
+        "max_sheet_mb": Rule(0, 1e6, "a size above 0 MB", lo_open=True),
         "priority.weight_structural": Rule(0, 10, "a weight from 0 to 10"),
         "priority.weight_condition": Rule(0, 10, "a weight from 0 to 10"),
         "priority.weight_lean": Rule(0, 10, "a weight from 0 to 10"),
@@ -405,7 +412,7 @@ def _validate(c: Config) -> None:
     for name, rule in NUMBER_RULES.items():
         for label, value in _numbers_of(c, name):
             need(rule.holds(value), label, value, rule.expected + " (a finite number)")
-    for name in ("joint_planes", "workbook_full_results_limit", "chunk_size"):
+    for name in ("joint_planes", "workbook_full_results_limit", "chunk_size", "max_cells"):
         value = getattr(c, name)
         need(isinstance(value, int) and not isinstance(value, bool), name, value, "a whole number")
     _validate_uncertainty(c, need)

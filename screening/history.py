@@ -136,7 +136,24 @@ def _stored_columns(con: sqlite3.Connection) -> set[str]:
     return {row[1] for row in con.execute(f"PRAGMA table_info({WALLS})")}
 
 
+def _refuse_not_a_history(path: Path) -> None:
+    """A history is a GeoPackage (an SQLite file) with our tables: say so if it is anything else."""
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(16)
+    except FileNotFoundError:
+        return  # created on first use
+    except OSError as exc:
+        raise ScreeningError(f"{path}: the history file cannot be read ({exc.strerror or exc})") from exc
+    if head and head != b"SQLite format 3\x00":
+        raise ScreeningError(
+            f"{path}: not a wallscreen history (not a GeoPackage/SQLite file); give another --history "
+            "or move the file away"
+        )
+
+
 def _connect(path: Path) -> sqlite3.Connection:
+    _refuse_not_a_history(Path(path))
     con = sqlite3.connect(path, timeout=60.0, isolation_level=None)
     con.execute("PRAGMA busy_timeout = 60000")
     return con
@@ -150,6 +167,13 @@ class Recorded:
     stored: bool
     same_as: str | None = None
     """The earlier run with the same input file content and settings, when not stored again."""
+
+
+def _refuse_duplicate_run_id(con: sqlite3.Connection, path: Path, run_id: str) -> None:
+    """Run ids are unique: a second run under one id would mix two runs in every comparison."""
+    if con.execute(f"SELECT 1 FROM {RUNS} WHERE run_id = ? LIMIT 1", (run_id,)).fetchone():
+        con.execute("ROLLBACK")
+        raise ScreeningError(f"{path}: a run {run_id} is already recorded; run ids must be unique")
 
 
 def record_run(
@@ -186,6 +210,7 @@ def record_run(
         if same:
             con.execute("ROLLBACK")
             return Recorded(run["run_id"], stored=False, same_as=same[0])
+        _refuse_duplicate_run_id(con, path, str(run["run_id"]))
         for c in cols:  # columns added since the file was created (a history of an earlier version)
             if c not in _stored_columns(con):
                 con.execute(f'ALTER TABLE {WALLS} ADD COLUMN "{c}" {_sql_type(c)}')

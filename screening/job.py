@@ -5,6 +5,7 @@ from __future__ import annotations
 import datetime as dt
 import hashlib
 import json
+import secrets
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -17,6 +18,7 @@ from screening.config import Config
 from screening.io import LoadedRegister, load_register
 from screening.io.locate import locate
 from screening.io.writers import write_csv, write_text_atomic
+from screening.io.xlsxcheck import SheetLimits
 from screening.outputs import sheet_filename
 from screening.pipeline import RESULT_COLUMNS, Screening, evaluate
 from screening.progress import Progress
@@ -34,6 +36,8 @@ class RunInfo:
     mapping_file: str | None = None
     sheet: str | None = None
     notes: list[str] = field(default_factory=list)
+    run_uid: str = field(default_factory=lambda: secrets.token_hex(4))
+    """A random part of the run id: two runs started in the same second never share one."""
 
 
 @dataclass(frozen=True)
@@ -89,7 +93,7 @@ class JobResult:
     @property
     def run_id(self) -> str:
         stamp = self.info.run_time.replace("-", "").replace(":", "").replace("+0000", "")
-        return f"{stamp}-{self.info.input_sha256[:8]}"
+        return f"{stamp}-{self.info.input_sha256[:8]}-{self.info.run_uid}"
 
     @property
     def n_rejected(self) -> int:
@@ -105,6 +109,30 @@ def sha256(path: str | Path) -> str:
     return digest.hexdigest()
 
 
+def input_digest(path: str | Path) -> str:
+    """SHA-256 of the register, as a clear error if it cannot be read (deleted, no permission)."""
+    from screening.errors import RegisterError
+
+    try:
+        return sha256(path)
+    except FileNotFoundError as exc:
+        raise RegisterError(f"{path}: no such file") from exc
+    except OSError as exc:
+        raise RegisterError(f"{path}: cannot be read ({exc.strerror or exc})") from exc
+
+
+def refuse_changed_input(path: str | Path, digest: str) -> None:
+    """The hash recorded must be that of the bytes read: refuse a register saved anew mid-read."""
+    from screening.errors import RegisterError
+
+    try:
+        after = sha256(path)
+    except OSError as exc:
+        raise RegisterError(f"{path}: removed or unreadable while it was being read ({exc})") from exc
+    if after != digest:
+        raise RegisterError(f"{path}: the file changed while it was being read; run again once it is saved")
+
+
 def screen_file(
     register_path: str | Path,
     *,
@@ -113,6 +141,7 @@ def screen_file(
     config: Config | None = None,
     history: str | Path | None = None,
     progress: Progress | None = None,
+    crs: str | None = None,
 ) -> JobResult:
     """Load, screen and locate a register file, without writing anything.
 
@@ -121,7 +150,10 @@ def screen_file(
     from screening.history import lean_points
 
     config = config or Config()
-    loaded = load_register(register_path, mapping=mapping, sheet=sheet)
+    limits = SheetLimits(config.max_cells, config.max_sheet_mb)
+    digest = input_digest(register_path)
+    loaded = load_register(register_path, mapping=mapping, sheet=sheet, limits=limits, crs=crs)
+    refuse_changed_input(register_path, digest)
     run = evaluate(
         loaded.frame,
         config,
@@ -132,7 +164,7 @@ def screen_file(
     )
     info = RunInfo(
         input_file=Path(register_path).name,
-        input_sha256=sha256(register_path),
+        input_sha256=digest,
         tool_version=__version__,
         run_time=dt.datetime.now(dt.UTC).replace(microsecond=0).isoformat(),
         config=config,
@@ -407,6 +439,7 @@ def rerender_map(results_dir: str | Path, options: MapOptions | None = None) -> 
     import geopandas as gpd
 
     from screening.errors import RegisterError
+    from screening.io.readers import read_result_csv
 
     folder = Path(results_dir)
     needed = [folder / "walls.gpkg", folder / "results.csv", folder / "run.json"]
@@ -414,7 +447,7 @@ def rerender_map(results_dir: str | Path, options: MapOptions | None = None) -> 
     if missing:
         raise RegisterError(f"{folder}: not a wallscreen output folder (missing {', '.join(missing)})")
     gdf = gpd.read_file(folder / "walls.gpkg", layer="walls")
-    results = pd.read_csv(folder / "results.csv", dtype={"wall_id": str})
+    results = read_result_csv(folder / "results.csv")
     info = json.loads((folder / "run.json").read_text(encoding="utf-8"))
     walls = pd.DataFrame(gdf.drop(columns="geometry"))
     walls["located"] = walls["located"].astype(bool)

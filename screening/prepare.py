@@ -10,6 +10,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -145,6 +146,7 @@ def _blank(series: pd.Series) -> pd.Series:
 
 def _clean_text(series: pd.Series) -> pd.Series:
     """Values as stripped text (numbers written as read), blanks kept as missing."""
+    series = _whole_numbers_as_shown(series)
     missing = series.isna()
     text = pd.Series(
         np.char.strip(np.where(missing.to_numpy(), "", series.to_numpy(dtype=object)).astype(str)),
@@ -152,6 +154,20 @@ def _clean_text(series: pd.Series) -> pd.Series:
         dtype=object,
     )
     return text.where(~missing)
+
+
+def _whole_numbers_as_shown(series: pd.Series) -> pd.Series:
+    """A spreadsheet's number 17 is read as 17.0: as text it is "17", as the user sees it."""
+    values = series.to_numpy(dtype=object)
+    floats = np.fromiter((isinstance(v, float) for v in values), dtype=bool, count=len(values))
+    if not floats.any():
+        return series
+    out = values.copy()
+    for i in np.flatnonzero(floats):
+        v = values[i]
+        if np.isfinite(v) and v.is_integer() and abs(v) < 1e15:
+            out[i] = str(int(v))
+    return pd.Series(out, index=series.index, dtype=object)
 
 
 def cast(frame: pd.DataFrame, config: Config, log: _Log) -> pd.DataFrame:
@@ -164,7 +180,7 @@ def cast(frame: pd.DataFrame, config: Config, log: _Log) -> pd.DataFrame:
         if col in schema.NUMERIC:
             numeric = pd.to_numeric(raw.where(~blank), errors="coerce").astype(float)
             log.problem(~blank & numeric.isna(), col, "expected a number", values=raw)
-            out[col] = numeric
+            out[col] = _refuse_non_finite(numeric, col, log)
         elif col in schema.CODED:
             allowed = schema.CODED[col] or tuple(config.consequence_weight)
             text = raw.where(~blank).astype(object)
@@ -178,6 +194,63 @@ def cast(frame: pd.DataFrame, config: Config, log: _Log) -> pd.DataFrame:
             out[col] = dates
         else:
             out[col] = _clean_text(raw.where(~blank).astype(object))
+    return out
+
+
+def _refuse_non_finite(numeric: pd.Series, col: str, log: _Log) -> pd.Series:
+    """inf, Infinity, 1e309: a row error naming the cell (a wall of infinite height is no wall)."""
+    infinite = pd.Series(np.isinf(numeric.to_numpy()), index=numeric.index)
+    log.problem(infinite, col, "expected a finite number (infinity is not a measurement)")
+    return numeric.mask(infinite)
+
+
+ERROR_CELL = (
+    r"#(?:DIV/0!|N/A|NAME\?|NULL!|NUM!|REF!|VALUE!|SPILL!|CALC!|FIELD!|BLOCKED!|UNKNOWN!|GETTING_DATA)"
+)
+"""The error values a spreadsheet shows for a formula it could not calculate."""
+CONTROL = r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]"
+"""Control characters other than tab and line breaks: a NUL byte, an escape sequence."""
+
+
+def refuse_error_cells(frame: pd.DataFrame, log: _Log) -> pd.DataFrame:
+    """Spreadsheet error cells (#DIV/0!, #N/A, ...) are row errors, never blanks a default fills."""
+    return _refuse_text(
+        frame,
+        log,
+        lambda text: text.str.strip().str.fullmatch(ERROR_CELL),
+        "a spreadsheet error cell: the formula could not be calculated; fix it in the register",
+    )
+
+
+def refuse_nul(frame: pd.DataFrame, log: _Log) -> pd.DataFrame:
+    """A NUL byte (or another control character but tab) in a cell is a row error wherever it is."""
+    return _refuse_text(
+        frame,
+        log,
+        lambda text: text.str.contains(CONTROL, regex=True),
+        "a control character (e.g. a NUL byte or an escape) in the cell: expected plain text",
+    )
+
+
+def _refuse_text(frame: pd.DataFrame, log: _Log, test: Any, message: str) -> pd.DataFrame:
+    """Log the text cells of the canonical columns where ``test`` holds; blank them so that they
+    are not reported twice (the row is rejected all the same)."""
+    out = frame
+    for col in schema.COLUMNS:
+        if col not in frame or frame[col].dtype.kind in "fiubcmM":
+            continue
+        kind = pd.api.types.infer_dtype(frame[col], skipna=True)
+        if kind in ("floating", "integer", "empty", "boolean", "decimal"):
+            continue
+        text = frame[col].astype(object)
+        if kind not in ("string", "mixed", "mixed-integer"):
+            text = text.where(pd.Series([isinstance(v, str) for v in text.to_numpy()], index=text.index))
+            text = text.astype(object).where(text.notna(), "")
+        hit = test(text).fillna(False).astype(bool)
+        if hit.any():
+            log.problem(hit, col, message)
+            out = out.copy() if out is frame else out
+            out[col] = out[col].mask(hit)
     return out
 
 
@@ -544,6 +617,7 @@ def prepare(
     if shown is not None:
         shown = shown.reset_index(drop=True)
     log = _Log(frame, labels or {}, shown)
+    frame = refuse_nul(refuse_error_cells(frame, log), log)
     typed = cast(frame, config, log)
     log.frame = typed
     validate(typed, config, log)

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -9,6 +10,7 @@ import pandas as pd
 
 from screening.io.mapping import ColumnMapping, load_mapping, to_canonical
 from screening.io.readers import RawRegister, read_register
+from screening.io.xlsxcheck import SheetLimits
 
 
 @dataclass(frozen=True)
@@ -23,12 +25,27 @@ class LoadedRegister:
 
 
 def load_register(
-    path: str | Path, *, mapping: str | Path | None = None, sheet: str | int | None = None
+    path: str | Path,
+    *,
+    mapping: str | Path | None = None,
+    sheet: str | int | None = None,
+    limits: SheetLimits | None = None,
+    crs: str | None = None,
 ) -> LoadedRegister:
-    """Read a register file and map it onto the canonical columns (read-only)."""
+    """Read a register file and map it onto the canonical columns (read-only).
+
+    ``crs`` (``--crs``) is the CRS of easting/northing and of a GIS layer that declares none; it
+    takes the place of the mapping file's ``[register] crs``.
+    """
     colmap = load_mapping(mapping)
+    if crs:
+        colmap = dataclasses.replace(colmap, crs=crs)
     raw = read_register(
-        path, sheet=sheet if sheet is not None else colmap.sheet, known_headers=colmap.headers
+        path,
+        sheet=sheet if sheet is not None else colmap.sheet,
+        known_headers=colmap.headers,
+        limits=limits,
+        crs=colmap.crs,
     )
     frame, labels, shown = to_canonical(raw, colmap)
     return LoadedRegister(frame, labels, shown, raw, colmap)

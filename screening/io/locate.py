@@ -40,13 +40,19 @@ def locate(walls: pd.DataFrame, crs: str | None = None) -> tuple[np.ndarray, pd.
         parsed = shapely.from_wkt(wkt[has_wkt].astype(str).to_numpy(), on_invalid="ignore")
         # Point, LineString or MultiLineString (GEOS type ids 0, 1, 5); unparsable WKT gives None (-1)
         ok = np.isin(shapely.get_type_id(parsed), [0, 1, 5]) & ~shapely.is_empty(parsed)
+        ok &= on_the_globe(parsed)  # POINT (nan nan) and metres given as degrees are not places
         idx = np.flatnonzero(has_wkt)
         geom[idx[ok]] = parsed[ok]
         bad = np.zeros(n, dtype=bool)
         bad[idx[~ok]] = True
         problems.append(
             _warn(
-                walls, bad, "geometry", wkt, "expected WKT of a Point or LineString in WGS84; wall not mapped"
+                walls,
+                bad,
+                "geometry",
+                wkt,
+                "expected WKT of a Point or LineString in WGS84, longitude -180 to 180 and "
+                "latitude -90 to 90 (finite); wall not mapped",
             )
         )
     need = np.array([g is None for g in geom], dtype=bool)
@@ -66,22 +72,90 @@ def locate(walls: pd.DataFrame, crs: str | None = None) -> tuple[np.ndarray, pd.
     east = walls["easting"].to_numpy(dtype=float) if "easting" in walls else np.full(n, np.nan)
     north = walls["northing"].to_numpy(dtype=float) if "northing" in walls else np.full(n, np.nan)
     use = need & np.isfinite(east) & np.isfinite(north)
-    if use.any():
-        if not crs:
-            raise RegisterError(
-                "the register gives easting/northing but no CRS: name it in the mapping file "
-                '([register] crs = "EPSG:27700", for example)'
-            )
-        try:
-            tf = Transformer.from_crs(crs, "EPSG:4326", always_xy=True)
-        except CRSError as exc:
-            raise RegisterError(f"unknown CRS {crs!r}: {exc}") from exc
-        x, y = tf.transform(east[use], north[use])
-        geom[use] = shapely.points(x, y)
+    problems += _locate_grid(walls, east, north, use, crs, geom)
     problems = [p for p in problems if len(p)]
     return geom, (
         pd.concat(problems, ignore_index=True) if problems else _warn(walls, np.zeros(n, bool), "", None, "")
     )
+
+
+def _locate_grid(
+    walls: pd.DataFrame,
+    east: np.ndarray,
+    north: np.ndarray,
+    use: np.ndarray,
+    crs: str | None,
+    geom: np.ndarray,
+) -> list[pd.DataFrame]:
+    """Easting/northing of the rows in ``use`` into ``geom`` (WGS84); warnings for the rest."""
+    n = len(walls)
+    problems: list[pd.DataFrame] = []
+    if use.any() and not crs:
+        # only these rows need a CRS: they are screened, listed, not mapped; lat/lon rows go on
+        problems.append(
+            _warn(
+                walls,
+                use,
+                "easting",
+                walls["easting"],
+                "easting/northing given but no CRS: pass --crs EPSG:xxxx (or [register] crs in the "
+                "mapping file); wall not mapped",
+            )
+        )
+    elif use.any():
+        sel = np.flatnonzero(use)
+        x, y = _reproject(east[sel], north[sel], str(crs))
+        inside = _in_area_of_use(x, y, str(crs))
+        outside = np.zeros(n, dtype=bool)
+        outside[sel[~inside]] = True
+        problems.append(
+            _warn(
+                walls,
+                outside,
+                "easting",
+                walls["easting"].astype(str) + " / " + walls["northing"].astype(str),
+                f"easting/northing outside the area of use of {crs} (extra digits? another CRS?); "
+                "wall not mapped",
+            )
+        )
+        geom[sel[inside]] = shapely.points(x[inside], y[inside])
+    return problems
+
+
+def on_the_globe(geoms: np.ndarray) -> np.ndarray:
+    """True where every coordinate is a finite longitude/latitude (WGS84 bounds)."""
+    b = shapely.bounds(geoms)
+    with np.errstate(invalid="ignore"):
+        return (
+            np.isfinite(b).all(axis=1)
+            & (b[:, 0] >= -180)
+            & (b[:, 2] <= 180)
+            & (b[:, 1] >= -90)
+            & (b[:, 3] <= 90)
+        )
+
+
+def _reproject(x: np.ndarray, y: np.ndarray, crs: str) -> tuple[np.ndarray, np.ndarray]:
+    try:
+        tf = Transformer.from_crs(crs, "EPSG:4326", always_xy=True)
+    except CRSError as exc:
+        raise RegisterError(f"unknown CRS {crs!r}: {exc}") from exc
+    lon, lat = tf.transform(x, y)
+    return np.asarray(lon, dtype=float), np.asarray(lat, dtype=float)
+
+
+def _in_area_of_use(lon: np.ndarray, lat: np.ndarray, crs: str, margin_deg: float = 0.5) -> np.ndarray:
+    """True where a reprojected point is finite and within the CRS's area of use (pyproj), with a
+    small margin; a CRS without an area of use is checked against the globe only."""
+    from pyproj import CRS
+
+    area = CRS.from_user_input(crs).area_of_use
+    with np.errstate(invalid="ignore"):
+        ok = np.isfinite(lon) & np.isfinite(lat) & (np.abs(lon) <= 180) & (np.abs(lat) <= 90)
+        if area is not None:
+            ok &= (lon >= area.west - margin_deg) & (lon <= area.east + margin_deg)
+            ok &= (lat >= area.south - margin_deg) & (lat <= area.north + margin_deg)
+    return ok
 
 
 def _warn(

@@ -111,7 +111,7 @@ def load_mapping(path: str | Path | None) -> ColumnMapping:
     return ColumnMapping(tuple(cols), values, reg.get("sheet"), reg.get("crs"), path)
 
 
-SECTIONS: dict[str, tuple[str, ...]] = {"register": ("sheet", "crs", "layer"), "columns": (), "values": ()}
+SECTIONS: dict[str, tuple[str, ...]] = {"register": ("sheet", "crs"), "columns": (), "values": ()}
 """The mapping file's sections and, where fixed, their keys (empty: the owner's own keys)."""
 ENTRY_KEYS = ("column", "unit")
 

@@ -8,7 +8,9 @@ canonical column, so that every message can point at the user's file.
 from __future__ import annotations
 
 import csv
+import datetime as dt
 import io
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -17,6 +19,7 @@ import pandas as pd
 
 from screening import schema
 from screening.errors import RegisterError
+from screening.io.xlsxcheck import SheetLimits, check_sheet_size, error_cells
 
 SPREADSHEETS = (".xlsx", ".xlsm", ".xls", ".ods")
 GIS = (".gpkg", ".geojson", ".json", ".shp")
@@ -53,7 +56,12 @@ class RawRegister:
 
 
 def read_register(
-    path: str | Path, *, sheet: str | int | None = None, known_headers: set[str] | None = None
+    path: str | Path,
+    *,
+    sheet: str | int | None = None,
+    known_headers: set[str] | None = None,
+    limits: SheetLimits | None = None,
+    crs: str | None = None,
 ) -> RawRegister:
     """Read a register file; the file is opened read-only and never written.
 
@@ -67,6 +75,8 @@ def read_register(
     known_headers : set of str, optional
         Headers to look for when finding the header row (canonical names and
         the mapping file's headers).
+    limits : SheetLimits, optional
+        How large a spreadsheet's sheet may be (settings ``max_cells``, ``max_sheet_mb``).
     """
     path = Path(path)
     if not path.exists():
@@ -78,12 +88,26 @@ def read_register(
     if suffix in (".csv", ".txt"):
         return _read_csv(path, known)
     if suffix in SPREADSHEETS:
-        return _read_spreadsheet(path, sheet, known)
+        return _read_spreadsheet(path, sheet, known, limits or SheetLimits())
     if suffix in GIS:
-        return _read_gis(path)
+        return _read_gis(path, crs)
     raise RegisterError(
         f"{path}: unsupported file type {suffix or '(none)'}; expected one of {', '.join(SUFFIXES)}"
     )
+
+
+def read_result_csv(path: str | Path) -> pd.DataFrame:
+    """A CSV the tool wrote (walls.csv, results.csv, problems.csv), ids as text.
+
+    Text that the writer protected against formula injection (``'=...``) is read as it was.
+    Only an empty cell is missing: a wall called ``NA``, ``None``, ``null``, ``N/A`` or ``nan`` keeps
+    its id (pandas would read each as a missing value and the walls would collapse into one).
+    """
+    frame = pd.read_csv(path, dtype={"wall_id": str}, keep_default_na=False, na_values=[""])
+    for col in frame.columns:  # the ' that screening.io.writers.csv_safe_text put before formulas
+        if frame[col].dtype == object or pd.api.types.is_string_dtype(frame[col]):
+            frame[col] = frame[col].str.replace(r"^'(?='*[=+\-@\t\r])", "", regex=True)
+    return frame
 
 
 def _find_header(grid: pd.DataFrame, known: set[str], path: Path) -> int:
@@ -135,8 +159,50 @@ def _spaces(cells: np.ndarray) -> np.ndarray:
     return np.vectorize(lambda v: isinstance(v, str) and not v.strip(), otypes=[bool])(cells)
 
 
+def _decode_unicode_text(data: bytes) -> tuple[str, str] | None:
+    """UTF-16 text (Excel's "Unicode text", with its byte order mark), or None."""
+    if data[:2] in (b"\xff\xfe", b"\xfe\xff"):
+        try:
+            return data.decode("utf-16"), "utf-16"
+        except UnicodeDecodeError:
+            return None
+    return None
+
+
+def _decode_mostly_utf8(data: bytes) -> tuple[str, str] | None:
+    """UTF-8 text with a few bytes of another encoding (a cell pasted from an older file): the
+    UTF-8 is kept and only the stray bytes are read as cp1252; None if the text holds no UTF-8."""
+    parts, i, stray, good = [], 0, 0, False
+    while True:
+        try:
+            chunk = data[i:].decode("utf-8")
+        except UnicodeDecodeError as exc:
+            chunk = data[i : i + exc.start].decode("utf-8")
+            parts += [chunk, data[i + exc.start : i + exc.end].decode("cp1252", errors="replace")]
+            good |= any(ord(c) > 127 for c in chunk)
+            stray += 1
+            i += exc.end
+            continue
+        parts.append(chunk)
+        good |= any(ord(c) > 127 for c in chunk)
+        break
+    if not good:
+        return None
+    return "".join(parts), f"utf-8 with {stray} stray byte(s) read as cp1252"
+
+
 def _decode(data: bytes) -> tuple[str, str]:
-    for encoding in ("utf-8-sig", "cp1252", "latin-1"):
+    found = _decode_unicode_text(data)
+    if found is not None:
+        return found
+    try:
+        return data.decode("utf-8-sig"), "utf-8-sig"
+    except UnicodeDecodeError:
+        pass
+    found = _decode_mostly_utf8(data)
+    if found is not None:
+        return found
+    for encoding in ("cp1252", "latin-1"):
         try:
             return data.decode(encoding), encoding
         except UnicodeDecodeError:
@@ -148,7 +214,7 @@ def _read_csv(path: Path, known: set[str]) -> RawRegister:
     data = path.read_bytes()
     if not data.strip():
         raise RegisterError(f"{path}: the file is empty")
-    if b"\x00" in data[:4096] or data[:4] == b"PK\x03\x04":
+    if (b"\x00" in data[:4096] and _decode_unicode_text(data) is None) or data[:4] == b"PK\x03\x04":
         raise RegisterError(f"{path}: not a text file (is it a spreadsheet with the wrong name?)")
     text, encoding = _decode(data)
     sample = text[:65536]
@@ -158,14 +224,7 @@ def _read_csv(path: Path, known: set[str]) -> RawRegister:
         delimiter = ","
     # decimal commas go with a semicolon (or tab) delimiter
     decimal = "," if delimiter in ";\t|" and _looks_decimal_comma(sample, delimiter) else "."
-    grid = pd.read_csv(
-        io.StringIO(text),
-        sep=delimiter,
-        header=None,
-        dtype=str,
-        keep_default_na=False,
-        skip_blank_lines=False,
-    )
+    grid = _parse_csv(text, delimiter, path)
     header = _find_header(grid, known, path)
     frame = _frame_from_grid(grid, header, path)
     # only columns holding a comma can need it: decimal commas, or thousands separators
@@ -181,6 +240,36 @@ def _read_csv(path: Path, known: set[str]) -> RawRegister:
             frame[col] = fix(s)
     notes = [f"read as CSV: encoding {encoding}, delimiter {delimiter!r}, decimal {decimal!r}"]
     return RawRegister(frame, path, header_row=header + 1, notes=notes)
+
+
+def _parse_csv(text: str, delimiter: str, path: Path) -> pd.DataFrame:
+    """Every cell as text; a ragged row or an unclosed quote is one clear error naming the line."""
+    try:
+        return pd.read_csv(
+            io.StringIO(text),
+            sep=delimiter,
+            header=None,
+            dtype=str,
+            keep_default_na=False,
+            skip_blank_lines=False,
+        )
+    except pd.errors.ParserError as exc:
+        message = str(exc)
+        ragged = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", message)
+        if ragged:
+            want, line, saw = ragged.groups()
+            raise RegisterError(
+                f"{path}: line {line} has {saw} cells where the lines above have {want} "
+                f"(a {delimiter!r} inside a cell that is not in quotes?); quote the cell or remove "
+                "the extra cells"
+            ) from exc
+        unclosed = re.search(r"EOF inside string starting at row (\d+)", message)
+        if unclosed:
+            raise RegisterError(
+                f"{path}: a quote opened on line {int(unclosed.group(1)) + 1} is never closed; "
+                'close it (") or remove it'
+            ) from exc
+        raise RegisterError(f"{path}: not a readable CSV file ({message.strip()})") from exc
 
 
 def _decimal_comma(s: pd.Series) -> pd.Series:
@@ -205,8 +294,11 @@ def _is_number(text: str) -> bool:
     return True
 
 
-def _read_spreadsheet(path: Path, sheet: str | int | None, known: set[str]) -> RawRegister:
-    head = path.read_bytes()[:8]
+def _read_spreadsheet(
+    path: Path, sheet: str | int | None, known: set[str], limits: SheetLimits
+) -> RawRegister:
+    with open(path, "rb") as fh:
+        head = fh.read(8)
     if head.startswith(b"\xd0\xcf\x11\xe0") and path.suffix.lower() != ".xls":
         raise RegisterError(
             f"{path}: the workbook is encrypted (password-protected) or an old .xls saved "
@@ -214,6 +306,7 @@ def _read_spreadsheet(path: Path, sheet: str | int | None, known: set[str]) -> R
         )
     import python_calamine
 
+    check_sheet_size(path, sheet, limits)  # before any cell is read: bombs are refused here
     try:
         book = python_calamine.CalamineWorkbook.from_path(str(path))
     except Exception as exc:  # calamine raises its own types for every broken file
@@ -233,28 +326,73 @@ def _read_spreadsheet(path: Path, sheet: str | int | None, known: set[str]) -> R
     try:
         # python-calamine directly: cells as written ("n/a" stays "n/a", the validator names
         # it), about 2x faster than going through pandas.read_excel (benchmarks/)
-        rows = book.get_sheet_by_name(chosen).to_python()
+        data = book.get_sheet_by_name(chosen)
+        rows, (top, left) = data.to_python(), data.start or (0, 0)
     except Exception as exc:  # a damaged sheet inside a readable workbook
         raise RegisterError(f"{path}: sheet {chosen!r} could not be read ({exc})") from exc
     finally:
         book.close()
     if not rows:
         raise RegisterError(f"{path}: sheet {chosen!r} is empty")
-    grid = pd.DataFrame(rows, dtype=object)
+    grid = cells_as_shown(pd.DataFrame(rows, dtype=object))
+    if path.suffix.lower() in (".xlsx", ".xlsm"):
+        _put_error_cells(grid, error_cells(path, str(chosen)), top, left)
     header = _find_header(grid, known, path)
     frame = _frame_from_grid(grid, header, path)
+    frame["row"] += top  # the grid starts at the first used row of the sheet
     return RawRegister(
-        frame, path, sheet=str(chosen), header_row=header + 1, notes=[f"read sheet {chosen!r}"]
+        frame, path, sheet=str(chosen), header_row=header + 1 + top, notes=[f"read sheet {chosen!r}"]
     )
 
 
-def _read_gis(path: Path) -> RawRegister:
+def _as_shown(value: object) -> object:
+    """A typed cell as the user sees it: dates as ISO dates, TRUE/FALSE as words."""
+    if isinstance(value, bool):
+        return "TRUE" if value else "FALSE"
+    if isinstance(value, dt.datetime):
+        return value.date().isoformat() if value.time() == dt.time() else value.isoformat(sep=" ")
+    if isinstance(value, (dt.date, dt.time)):
+        return value.isoformat()
+    if isinstance(value, dt.timedelta):
+        return str(value)
+    return value
+
+
+def cells_as_shown(grid: pd.DataFrame) -> pd.DataFrame:
+    """Dates, times and booleans as text the user would recognise (numbers stay numbers: the
+    preparation writes a whole number 17.0 as "17" where text is expected)."""
+    for col in grid.columns:
+        kind = pd.api.types.infer_dtype(grid[col], skipna=True)
+        if kind not in ("floating", "integer", "string", "empty", "mixed-integer-float"):
+            grid[col] = grid[col].map(_as_shown)
+    return grid
+
+
+def _put_error_cells(grid: pd.DataFrame, cells: list[tuple[int, int, str]], top: int, left: int) -> None:
+    """Put the error values (#DIV/0!) back where the reader left blanks, so they are reported."""
+    for row, col, text in cells:
+        r, c = row - top, col - left
+        if 0 <= r < grid.shape[0] and 0 <= c < grid.shape[1]:
+            grid.iat[r, c] = text
+
+
+def _read_gis(path: Path, given_crs: str | None = None) -> RawRegister:
     import geopandas as gpd
 
     try:
         gdf = gpd.read_file(path, engine="pyogrio")
     except Exception as exc:  # pyogrio raises DataSourceError and friends
         raise RegisterError(f"{path}: not a readable GIS layer ({exc})") from exc
+    if gdf.crs is None:
+        if not given_crs:
+            raise RegisterError(
+                f"{path}: the layer has no CRS, so its coordinates could be metres or degrees; "
+                "pass --crs EPSG:xxxx (or [register] crs in the mapping file)"
+            )
+        try:
+            gdf = gdf.set_crs(given_crs)
+        except Exception as exc:  # pyproj's CRSError
+            raise RegisterError(f"unknown CRS {given_crs!r}: {exc}") from exc
     crs = gdf.crs.to_string() if gdf.crs is not None else None
     if crs is not None and gdf.crs is not None and not gdf.crs.equals("EPSG:4326"):
         gdf = gdf.to_crs("EPSG:4326")

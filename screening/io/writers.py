@@ -31,10 +31,35 @@ def atomic_path(target: str | Path) -> Iterator[Path]:
         umask = os.umask(0)
         os.umask(umask)
         os.chmod(tmp_path, 0o666 & ~umask)
+        fsync_file(tmp_path)  # the bytes on disk before the name: a power cut leaves no empty file
         os.replace(tmp_path, target)
+        fsync_folder(target.parent)  # and the rename itself
     finally:
         if tmp_path.exists():
             tmp_path.unlink()
+
+
+def fsync_file(path: Path) -> None:
+    """Flush a written file to the disk (not only to the system's cache)."""
+    fd = os.open(path, os.O_RDONLY)
+    try:
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+
+
+def fsync_folder(folder: Path) -> None:
+    """Flush a folder's entries (a rename into it) to the disk, where the system allows it."""
+    try:
+        fd = os.open(folder, os.O_RDONLY)
+    except OSError:
+        return  # e.g. Windows: folders cannot be opened; the rename is still atomic
+    try:
+        os.fsync(fd)
+    except OSError:
+        pass  # some file systems refuse fsync on a folder
+    finally:
+        os.close(fd)
 
 
 def write_atomic(target: str | Path, writer: Callable[[Path], object]) -> Path:
@@ -96,11 +121,40 @@ def _write_arrow_csv(frame: pd.DataFrame, tmp: Path) -> None:
 
 
 def write_csv(frame: pd.DataFrame, target: str | Path) -> Path:
-    """CSV with ``inf`` written as such, blanks for missing values and numbers at
-    :data:`CSV_DIGITS` significant figures (pyarrow's writer: some 10 times pandas' speed)."""
+    """CSV with ``inf`` written as such, blanks for missing values, numbers at
+    :data:`CSV_DIGITS` significant figures (pyarrow's writer: some 10 times pandas' speed) and
+    text made safe to open in a spreadsheet (:func:`csv_safe_text`)."""
+    frame = csv_safe_text(frame)
     if frame.columns.has_duplicates or not len(frame.columns):
         return write_atomic(target, lambda tmp: frame.to_csv(tmp, index=False, encoding="utf-8"))
     return write_atomic(target, lambda tmp: _write_arrow_csv(frame, tmp))
+
+
+FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+"""What a spreadsheet takes for the start of a formula (OWASP, CSV injection)."""
+FORMULA_PATTERN = r"'*[=+\-@\t\r]"
+
+
+def csv_safe_text(frame: pd.DataFrame) -> pd.DataFrame:
+    """Text cells that start like a formula (= + - @, tab, CR) prefixed with ``'``.
+
+    After the OWASP guidance on CSV injection: a spreadsheet opening the CSV then shows the
+    text and runs nothing. Number columns are left alone (a negative margin stays a number).
+    """
+    out = frame
+    for col in frame.columns:
+        series = frame[col]
+        if series.dtype.kind in "fiubcmM" or isinstance(series.dtype, pd.CategoricalDtype):
+            continue
+        text = series.astype(object)
+        is_text = pd.Series([isinstance(v, str) for v in text.to_numpy()], index=text.index, dtype=bool)
+        # text that already starts with ' before a formula character gets one more, so that
+        # reading back (screening.io.readers.read_result_csv) takes exactly one off
+        risky = is_text & text.where(is_text, "").astype(str).str.match(FORMULA_PATTERN)
+        if risky.any():
+            out = out.copy() if out is frame else out
+            out[col] = text.mask(risky, "'" + text.where(risky, "").astype(str))
+    return out
 
 
 def write_text_atomic(target: str | Path, text: str) -> Path:
