@@ -31,7 +31,7 @@ CASES = ("drained", "blocked", "surveyed")
 
 
 # a frozen mapping pickles as its plain dict, so that Config pickles (chunks sent to other processes)
-def _mapping_proxy(items: dict[str, Any]) -> Mapping[str, Any]:
+def _mapping_proxy(items: dict[str, Any]) -> MappingProxyType[str, Any]:
     return MappingProxyType(items)
 
 
