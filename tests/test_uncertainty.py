@@ -230,3 +230,15 @@ def test_average_ranks_match_scipy() -> None:
 def test_bad_settings_are_named(key, value) -> None:
     with pytest.raises(ConfigError, match=key):
         Config(**{key: value})
+
+
+def test_sample_register_has_a_wall_whose_figures_cannot_be_right() -> None:
+    # sample_inventory/README.md names HV-102 (its implausible lean) as inconsistent by design
+    from screening.demo import sample_paths
+    from screening.job import screen_file
+
+    register, mapping = sample_paths()
+    walls = screen_file(register, mapping=mapping).walls.set_index("wall_id")
+    assert walls.loc["HV-102", "data_inconsistent"]
+    assert walls.loc["HV-102", "priority_band"] == "check_data"
+    assert (walls["measure_next"].fillna("") != "").sum() > 10
