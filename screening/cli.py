@@ -9,6 +9,7 @@ stay as they were or complete, none is half-written.
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import re
 from pathlib import Path
@@ -22,7 +23,7 @@ from rich.markup import escape as _rich_escape
 from rich.table import Table
 
 from screening import __version__
-from screening.config import load_config
+from screening.config import Config, load_config
 from screening.errors import ScreeningError
 from screening.job import JobResult, MapOptions, rerender_map, screen_file, write_outputs
 from screening.outputs.sheets import flagged_walls
@@ -279,11 +280,12 @@ def _screen_with_progress(
     sheets: bool = False,
     history: Path | None = None,
     crs: str | None = None,
+    draws: tuple[int | None, int | None] = (None, None),
 ) -> JobResult:
     """Screen and write; a progress bar for registers large enough to wait for."""
     from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
 
-    cfg = load_config(config)
+    cfg = _with_draws(load_config(config), *draws)
     big = register.exists() and register.stat().st_size > 2_000_000
     with Progress(
         SpinnerColumn(),
@@ -348,6 +350,13 @@ def run(
     ] = None,
     no_history: Annotated[bool, typer.Option("--no-history", help="Keep no run history")] = False,
     crs: CrsOpt = None,
+    samples: Annotated[
+        int | None,
+        typer.Option("--samples", help="Draws per wall for the probabilities (0 = off) [default: 2000]"),
+    ] = None,
+    seed: Annotated[
+        int | None, typer.Option("--seed", help="Seed of the draws (same seed, same figures)")
+    ] = None,
 ) -> None:
     """Screen every wall in the drained, blocked and surveyed cases and write the outputs."""
     options = MapOptions(map_assets_url, map_assets_dir, map_tiles)
@@ -355,7 +364,9 @@ def run(
     try:
         options.check()
         _refuse_unsafe_outputs(register, out, hist, mapping, config)
-        job = _screen_with_progress(register, out, mapping, sheet, config, options, sheets, hist, crs)
+        job = _screen_with_progress(
+            register, out, mapping, sheet, config, options, sheets, hist, crs, draws=(samples, seed)
+        )
     except ScreeningError as exc:
         raise _fail(exc) from None
     except OSError as exc:
@@ -364,6 +375,15 @@ def run(
     _print_summary(job)
     if job.n_rejected:
         raise typer.Exit(EXIT_SOME_REJECTED)
+
+
+def _with_draws(cfg: Config, samples: int | None, seed: int | None) -> Config:
+    """The settings with ``--samples`` and ``--seed`` applied (method.md §13)."""
+    if samples is not None:
+        cfg = dataclasses.replace(cfg, samples=samples)
+    if seed is not None:
+        cfg = dataclasses.replace(cfg, seed=seed)
+    return cfg
 
 
 @app.command()

@@ -46,6 +46,7 @@ def test_workbook_sheets_and_layout(run_dir: Path) -> None:
     assert book.sheetnames == [
         "Ranked walls",
         "Look first",
+        "What to measure next",
         "Results by case",
         "Rejected rows",
         "Assumed defaults",

@@ -33,7 +33,9 @@ BAND_COLOURS = {
     "inspect_soon": "#C2A5CF",
     "routine": "#A6DBA0",
     "low_concern": "#008837",
+    "check_data": "#4D4D4D",  # figures that cannot be right (method.md §13): outside the sequence
 }
+LIGHT_TEXT_BANDS = ("inspect_first", "low_concern", "check_data")
 
 # (column, header with units, kind); kind: text (from the register: always a string),
 # word (our own words), num2, num3, int, bool
@@ -50,6 +52,13 @@ SUMMARY_COLUMNS: Sequence[tuple[str, str, str]] = (
     ("utilisation_drained", "Utilisation drained [-]", "num2"),
     ("utilisation_blocked", "Utilisation blocked [-]", "num2"),
     ("utilisation_surveyed", "Utilisation surveyed [-]", "num2"),
+    *(
+        (f"p_failure_{case}", f"P(failure) {case}, given it stands [-]", "num3")
+        for case in ("drained", "blocked", "surveyed")
+    ),
+    ("p_stands", "Share of draws standing [-]", "num3"),
+    ("data_inconsistent", "Figures cannot be right", "bool"),
+    ("measure_next", "Measure next", "word"),
     ("state", "Base state (worst case)", "word"),
     ("outside_middle_third", "Outside middle third in any case", "bool"),
     ("over_allowable_bearing", "Over allowable bearing in any case", "bool"),
@@ -250,7 +259,7 @@ class _Formats:
             band: book.add_format(
                 {
                     "bg_color": colour,
-                    "font_color": "#FFFFFF" if band in ("inspect_first", "low_concern") else "#000000",
+                    "font_color": "#FFFFFF" if band in LIGHT_TEXT_BANDS else "#000000",
                 }
             )
             for band, colour in BAND_COLOURS.items()
@@ -410,6 +419,8 @@ def write_workbook(
         out = _Book(tmp)
         _ranked_sheet(out, walls)
         _look_first_sheet(out, walls, look_first, changes)
+        if "measure_next" in walls:
+            _measure_next_sheet(out, walls)
         if changes is not None:
             _changes_sheet(out, changes)
         _results_sheet(out, walls, _toe_in_words(results, near_toe_m), full_results_limit)
@@ -509,6 +520,37 @@ def _carried_block(
         last += 1
         sheet.write_string(last, 2, f"… {len(carried) - shown} more on 'Changes since last run'")
     return last + 2
+
+
+MEASURE_COLUMNS: Sequence[tuple[str, str, str]] = (
+    ("measure_next", "Measure next", "word"),
+    ("walls", "Walls", "int"),
+    ("wall_id", "Wall", "text"),
+    ("name", "Name", "text"),
+    ("rank", "Rank", "int"),
+    ("priority_band", "Priority band", "word"),
+    ("p_failure_blocked", "P(failure) blocked, given it stands [-]", "num3"),
+    ("p_failure_surveyed", "P(failure) surveyed, given it stands [-]", "num3"),
+)
+
+
+def _measure_next_sheet(out: _Book, walls: pd.DataFrame) -> None:
+    """The survey plan (method.md §13): walls grouped by the input whose measurement would most
+    change their probability of failure; the groups with the most walls first, in rank order."""
+    plan = walls[walls["measure_next"].fillna("") != ""].copy()
+    plan["walls"] = plan.groupby("measure_next")["wall_id"].transform("size")
+    plan = plan.sort_values(["walls", "measure_next", "rank"], ascending=[False, True, True], kind="stable")
+    sheet = out.sheet("What to measure next")
+    sheet.write_string(
+        0,
+        0,
+        f"What to measure next: {len(plan)} walls grouped by the input that drives their probability "
+        "of failure (a default, estimated dimensions, or a water level not measured)",
+        out.f.title,
+    )
+    sheet.set_row(1, 32)
+    sheet.merge_range(1, 0, 1, 7, CAUTION, out.f.caution)
+    out.table(sheet, plan, MEASURE_COLUMNS, widths={"measure_next": 40, "name": 30}, start_row=3)
 
 
 def _changes_sheet(out: _Book, changes: pd.DataFrame) -> None:
