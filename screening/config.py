@@ -8,6 +8,7 @@ variant from TOML with :func:`load_config`.
 
 from __future__ import annotations
 
+import copyreg
 import dataclasses
 import difflib
 import math
@@ -29,6 +30,14 @@ FOUNDATIONS = ("rock", "gravel", "sand", "stiff_clay", "firm_clay", "soft_clay")
 DRAINAGE_STATES = ("working", "partial", "blocked", "unknown")
 CONSEQUENCES = ("railway", "road", "building", "footpath", "open_land")
 CASES = ("drained", "blocked", "surveyed")
+
+
+# a frozen mapping pickles as its plain dict, so that Config pickles (chunks sent to other processes)
+def _mapping_proxy(items: dict[str, Any]) -> Mapping[str, Any]:
+    return MappingProxyType(items)
+
+
+copyreg.pickle(MappingProxyType, lambda m: (_mapping_proxy, (dict(m),)))
 
 
 def _frozen(mapping: Mapping[str, Any]) -> Mapping[str, Any]:

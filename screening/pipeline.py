@@ -8,8 +8,9 @@ from __future__ import annotations
 
 import dataclasses
 import warnings
-from collections.abc import Callable, Mapping
+from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass
+from typing import Protocol
 
 import numpy as np
 import pandas as pd
@@ -22,6 +23,7 @@ from screening.core.engine import BEARING_METHODS, DERIVED_INPUTS, ENGINE_INPUTS
 from screening.core.stability import FLOATING, STATES
 from screening.history import INPUT_COLUMNS, lean_rates
 from screening.prepare import Prepared, prepare
+from screening.probability import add_uncertainty, summarise_uncertainty
 from screening.progress import Progress
 
 RESULT_COLUMNS = (
@@ -61,8 +63,17 @@ RESULT_COLUMNS = (
     "governing_check",
     "margin",
     "state",
+    "p_failure",
+    "p_failure_prior",
+    "p_outside_middle_third",
+    "driver",
+    "measure_next",
 )
-"""The columns of ``results.csv``, in order (the output contract)."""
+"""The columns of ``results.csv``, in order (the output contract); the last five are the
+probabilities of method.md §13, blank when ``samples`` is 0."""
+
+UNCERTAINTY_COLUMNS = RESULT_COLUMNS[-5:]
+UNCERTAINTY_WALL_COLUMNS = ("p_stands", "data_inconsistent", *(f"p_failure_{c}" for c in CASES))
 
 CRITICAL_COLUMNS = (
     "critical_water_height_m",
@@ -292,6 +303,11 @@ def add_priority(
             np.broadcast_to(np.asarray(rate, dtype=float), len(out)),
         )
         inputs = inputs.assign(**{c: out[c].to_numpy() for c in CRITICAL_COLUMNS})
+    structural = _probability_structural(out, results, s) if "p_failure_surveyed" in out else None
+    if structural is not None:
+        inputs = inputs.assign(
+            data_inconsistent=out["data_inconsistent"].to_numpy(), measure_next=out["measure_next"].to_numpy()
+        )
     like = priority.likelihood(
         out["utilisation_surveyed"],
         out["utilisation_blocked"],
@@ -300,10 +316,15 @@ def add_priority(
         inputs["crack_height_m"].notna(),
         s,
         inputs["lean_rate_deg_per_year"] if "lean_rate_deg_per_year" in inputs else None,
+        structural=structural,
     )
     cons = priority.consequence(inputs["consequence"], inputs["height_m"], config.consequence_weight, s)
     out["priority_score"] = np.round(100.0 * like * cons, 2)
     out["priority_band"] = priority.band(out["priority_score"], s)
+    if structural is not None:
+        out["priority_band"] = priority.band_with_data_check(
+            out["priority_score"], out["data_inconsistent"], s
+        )
     by_case = {case: results[results["case"] == case].set_index("_wall").loc[summary.index] for case in CASES}
     out["reason"] = priority.reasons(inputs, by_case, near_toe_m=config.resultant_near_toe_m)
     for col in (*INPUT_COLUMNS, "lean_rate_deg_per_year", "lean_rate_mm_per_year", "lean_growing"):
@@ -319,6 +340,18 @@ def add_priority(
     out = out.sort_values(["priority_score", "margin", "_far"], ascending=[False, True, False], kind="stable")
     out["rank"] = np.arange(1, len(out) + 1)
     return out.drop(columns="_far").reset_index(drop=True)
+
+
+def _probability_structural(
+    out: pd.DataFrame, results: pd.DataFrame, settings: priority.PrioritySettings
+) -> np.ndarray:
+    """The structural index of method.md §13 per wall (rows of ``out``, which carry ``_wall``
+    order through ``wall_id``): p_failure, or p_failure_prior where the figures cannot be right."""
+    prior = results.pivot(index="wall_id", columns="case", values="p_failure_prior").reindex(out["wall_id"])
+    bad = out["data_inconsistent"].to_numpy(dtype=bool)
+    surveyed = np.where(bad, prior["surveyed"].to_numpy(float), out["p_failure_surveyed"].to_numpy(float))
+    blocked = np.where(bad, prior["blocked"].to_numpy(float), out["p_failure_blocked"].to_numpy(float))
+    return priority.probability_index(surveyed, blocked, settings)
 
 
 def _floating_problems(results: pd.DataFrame, walls: pd.DataFrame) -> pd.DataFrame:
@@ -363,24 +396,111 @@ def with_lean_rates(
     return dataclasses.replace(prepared, walls=walls)
 
 
+@dataclass(frozen=True)
+class ChunkResult:
+    """What :func:`evaluate_chunk` returns for one chunk of walls (``_wall`` counts from 0 in it)."""
+
+    results: pd.DataFrame
+    """Long results, one row per wall and case."""
+    walls: pd.DataFrame
+    """One row per wall: the §9 figures and, with samples on, p_stands and the standing driver."""
+
+
+def evaluate_chunk(chunk: Prepared, config: Config) -> ChunkResult:
+    """Everything computed per wall for one chunk of a prepared register: engine, §9 search, §13.
+
+    A top-level function of picklable arguments, so that a runner may send chunks to other
+    processes (see :class:`Runner`); a wall's figures do not depend on the chunk it is in.
+    """
+    results = screen_prepared(chunk, dataclasses.replace(config, chunk_size=max(len(chunk.walls), 1)))
+    walls = critical_figures(chunk, dataclasses.replace(config, chunk_size=max(len(chunk.walls), 1)))
+    if config.samples > 0 and len(chunk.walls):
+        results, extra = add_uncertainty(chunk, results, config)
+        walls = walls.join(extra)
+    return ChunkResult(results, walls)
+
+
+class Runner(Protocol):
+    """Runs :func:`evaluate_chunk` over chunks; results in the order of the chunks."""
+
+    def map(
+        self, fn: Callable[[Prepared, Config], ChunkResult], chunks: Sequence[Prepared], config: Config
+    ) -> Iterable[ChunkResult]: ...
+
+
+class LocalRunner:
+    """The default runner: one chunk after the other in this process."""
+
+    def map(
+        self, fn: Callable[[Prepared, Config], ChunkResult], chunks: Sequence[Prepared], config: Config
+    ) -> Iterator[ChunkResult]:
+        for chunk in chunks:
+            yield fn(chunk, config)
+
+
+def split_prepared(prepared: Prepared, size: int) -> list[Prepared]:
+    """The register in chunks of ``size`` walls (problems and assumptions stay with the whole)."""
+    n = len(prepared.walls)
+    empty = prepared.problems.iloc[:0]
+    return [
+        dataclasses.replace(
+            prepared,
+            walls=prepared.walls.iloc[start : start + size].reset_index(drop=True),
+            inputs={k: v[start : start + size] for k, v in prepared.inputs.items()},
+            problems=empty,
+            assumptions=prepared.assumptions.iloc[:0],
+            earlier_surveys=prepared.earlier_surveys.iloc[:0],
+        )
+        for start in range(0, n, size)
+    ]
+
+
+def _run_chunks(
+    prepared: Prepared, config: Config, runner: Runner, progress: Progress | None
+) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Every chunk through the runner, put back together in register order."""
+    n = len(prepared.walls)
+    size = max(int(config.chunk_size), 1)
+    chunks = split_prepared(prepared, size)
+    ids = prepared.walls["wall_id"].to_numpy(dtype=object)
+    results, walls = [], []
+    for k, piece in enumerate(runner.map(evaluate_chunk, chunks, config)):
+        start = k * size
+        if progress is not None and n > size:
+            progress(f"screened walls {start + 1:,}-{min(start + size, n):,} of {n:,}")
+        frame = piece.results.copy()
+        frame["_wall"] = frame["_wall"] + start
+        frame["wall_id"] = ids[frame["_wall"].to_numpy()]
+        results.append(frame)
+        walls.append(piece.walls.set_axis(piece.walls.index + start))
+    return pd.concat(results, ignore_index=True), pd.concat(walls)
+
+
 def evaluate(
     register: pd.DataFrame,
     config: Config | None = None,
     *,
     history_points: pd.DataFrame | None = None,
     progress: Progress | None = None,
+    runner: Runner | None = None,
     **kwargs: object,
 ) -> Screening:
-    """Prepare and screen a register; keep problems, assumptions and the per-wall summary."""
+    """Prepare and screen a register; keep problems, assumptions and the per-wall summary.
+
+    The walls go through :func:`evaluate_chunk` in chunks of ``config.chunk_size`` by way of
+    ``runner`` (default :class:`LocalRunner`, in this process).
+    """
     config = config or Config()
     prepared = prepare(register, config, **kwargs)  # type: ignore[arg-type]
     prepared = with_lean_rates(prepared, config, history_points)
     if len(prepared.walls) == 0:
         empty = pd.DataFrame({c: pd.Series(dtype=object) for c in RESULT_COLUMNS})
         return Screening(prepared, empty, pd.DataFrame(), prepared.problems, config)
-    results = screen_prepared(prepared, config, progress)
+    results, per_wall = _run_chunks(prepared, config, runner or LocalRunner(), progress)
     summary = summarise_walls(results, prepared.walls)
-    summary = summary.join(critical_figures(prepared, config, progress))
+    summary = summary.join(per_wall)
+    if config.samples > 0:
+        summary = summarise_uncertainty(summary, results)
     flags = suspect_data(prepared.walls, prepared.problems, kwargs.get("labels") or {})  # type: ignore[arg-type]
     flags["drainage_not_recorded"] = drainage_not_recorded(prepared.walls)
     walls = add_priority(summary, prepared.walls.assign(**flags), results, config)

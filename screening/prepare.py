@@ -15,7 +15,7 @@ import numpy as np
 import pandas as pd
 
 from screening import schema
-from screening.config import Config
+from screening.config import DIMENSION_SOURCES, Config
 from screening.core.engine import ENGINE_INPUTS
 
 PROBLEM_COLUMNS = ("row", "wall_id", "column", "value", "severity", "message")
@@ -308,9 +308,34 @@ def validate(w: pd.DataFrame, config: Config, log: _Log) -> None:
 def fill_defaults(w: pd.DataFrame, config: Config, log: _Log) -> pd.DataFrame:
     """Fill blanks from method.md §7 and record each default used, one group at a time."""
     w = w.copy()
+    _mark_recorded(w)
     for step in (_fill_wall, _fill_soil, _fill_foundation, _fill_foundation_soil, _fill_owner, _fill_water):
         step(w, config, log)
     return w
+
+
+RECORDED_FLAGS = {
+    "soil_friction_recorded": "soil_friction_deg",
+    "soil_unit_weight_recorded": "soil_unit_weight_kn_m3",
+    "wall_unit_weight_recorded": "wall_unit_weight_kn_m3",
+    "base_friction_recorded": "base_friction_deg",
+    "joint_friction_recorded": "joint_friction_deg",
+    "bearing_recorded": "allowable_bearing_kpa",
+}
+"""Flags (1/0) that an input's own cell was recorded, set before the blanks are filled: the
+uncertainty of method.md §13 takes the SD of a recorded or of a default value."""
+
+
+def _mark_recorded(w: pd.DataFrame) -> None:
+    """Which inputs were recorded, dimensions_source (blank reads recorded) and the water (§13)."""
+    for flag, col in RECORDED_FLAGS.items():
+        w[flag] = w[col].notna().astype(float)
+    w["bearing_recorded"] = (
+        w["allowable_bearing_kpa"].notna() | w["foundation_friction_deg"].notna()
+    ).astype(float)
+    w["water_measured"] = w["water_height_m"].notna().astype(float)
+    source = w["dimensions_source"].fillna("recorded")
+    w["dimensions_code"] = source.map({k: i for i, k in enumerate(DIMENSION_SOURCES)}).astype(float)
 
 
 def _fill_simple(w: pd.DataFrame, config: Config, log: _Log, col: str, used: pd.Series | None = None) -> None:

@@ -34,8 +34,9 @@ from numpy.typing import ArrayLike, NDArray
 
 FloatArray = NDArray[np.float64]
 
-BANDS = ("inspect_first", "inspect_soon", "routine", "low_concern")
+BANDS = ("check_data", "inspect_first", "inspect_soon", "routine", "low_concern")
 BAND_LABELS = {
+    "check_data": "Check the data first",
     "inspect_first": "Inspect first",
     "inspect_soon": "Inspect soon",
     "routine": "Routine inspection",
@@ -86,15 +87,25 @@ def likelihood(
     cracked: ArrayLike,
     settings: PrioritySettings,
     lean_rate_deg_per_year: ArrayLike | None = None,
+    structural: ArrayLike | None = None,
 ) -> FloatArray:
-    """Likelihood of poor performance on a 0–1 scale (see the module docstring)."""
+    """Likelihood of poor performance on a 0–1 scale (see the module docstring).
+
+    ``structural`` replaces the structural index of the utilisations where given (with samples
+    on: :func:`probability_index`).
+    """
     s = settings
     cond = np.clip((np.asarray(condition_rating, dtype=float) - 1.0) / 4.0, 0.0, 1.0)
     lean = np.clip(np.asarray(lean_deg, dtype=float) / s.lean_full_deg, 0.0, 1.0)
     crack = np.asarray(cracked, dtype=float)
     total = s.weight_structural + s.weight_condition + s.weight_lean + s.weight_crack
     value = (
-        s.weight_structural * structural_index(utilisation_surveyed, utilisation_blocked, s)
+        s.weight_structural
+        * (
+            structural_index(utilisation_surveyed, utilisation_blocked, s)
+            if structural is None
+            else np.asarray(structural, dtype=float)
+        )
         + s.weight_condition * cond
         + s.weight_lean * lean
         + s.weight_crack * crack
@@ -104,6 +115,79 @@ def likelihood(
         value = value + s.weight_lean_rate * np.clip(rate / s.lean_rate_full_deg_per_year, 0.0, 1.0)
         total += s.weight_lean_rate
     return value / total
+
+
+def probability_index(
+    p_failure_surveyed: ArrayLike, p_failure_blocked: ArrayLike, settings: PrioritySettings
+) -> FloatArray:
+    """The structural index with samples on (method.md §13): w·p(surveyed) + (1 − w)·p(blocked).
+
+    w is ``weight_surveyed_case`` (0.6). For a wall whose figures cannot be right the callers
+    pass p_failure_prior (the share over all draws). A blank probability counts as 0.
+    """
+    ps = np.nan_to_num(np.asarray(p_failure_surveyed, dtype=float), nan=0.0)
+    pb = np.nan_to_num(np.asarray(p_failure_blocked, dtype=float), nan=0.0)
+    w = settings.weight_surveyed_case
+    return np.clip(w * ps + (1 - w) * pb, 0.0, 1.0)
+
+
+def band_with_data_check(score: ArrayLike, inconsistent: ArrayLike, settings: PrioritySettings) -> NDArray:
+    """The band of each score, and ``check_data`` for a wall whose figures cannot be right (§13)."""
+    bands = band(score, settings).astype(object)
+    return np.where(np.asarray(inconsistent, dtype=bool), "check_data", bands)
+
+
+_FAILURE_MODES = {
+    "sliding": "sliding",
+    "overturning": "overturning",
+    "bearing": "bearing failure",
+    "crack_sliding": "sliding on the crack",
+    "crack_overturning": "toppling above the crack",
+    "crack_middle_third": "toppling above the crack",
+    "joint_sliding": "sliding on a bed joint",
+    "joint_overturning": "toppling above a bed joint",
+    "joint_middle_third": "toppling above a bed joint",
+}
+"""The deterministic governing check as the way the wall would fail, for the §13 clause."""
+
+_PROBABILITY_CASE_WORDS = {"surveyed": "as surveyed", "blocked": "with drains blocked"}
+
+
+def _one_in(p: FloatArray) -> NDArray[np.object_]:
+    """A probability in words an owner reads: "1 in 4", "3 in 10", "less than 1 in 1,000"."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        n = np.round(1.0 / p)
+    in_n = "1 in " + np.char.mod("%d", np.where(np.isfinite(n), n, 0).astype(np.int64)).astype(object)
+    tenths = np.char.mod("%d", np.round(10 * np.nan_to_num(p)).astype(np.int64)).astype(object) + " in 10"
+    text = np.where(p > 0.5, tenths, in_n)
+    text = np.where(p >= 0.95, "almost certain", text)
+    return np.where(p < 0.001, "less than 1 in 1,000", text).astype(object)
+
+
+def probability_parts(walls: pd.DataFrame, by_case: Mapping[str, pd.DataFrame]) -> NDArray[np.object_]:
+    """The §13 clause of the reason line: the likelier failure given that the wall stands today,
+    what to measure next, or for figures that cannot be right, the likeliest wrong input."""
+    pieces = []
+    for case, words in _PROBABILITY_CASE_WORDS.items():
+        r = by_case[case]
+        p = r["p_failure"].to_numpy(dtype=float)
+        check = pd.Series(r["governing_check"].astype(str).to_numpy(dtype=object))
+        mode = check.map(_FAILURE_MODES).fillna("failure").to_numpy(dtype=object)
+        text = _one_in(p) + " chance of " + mode + " " + words + ", given it stands today"
+        pieces.append((np.nan_to_num(p), _when(p >= 0.001, text)))
+    (ps, ts), (pb, tb) = pieces
+    text = np.where(pb > ps, tb, ts).astype(object)
+    measure = walls["measure_next"].fillna("").to_numpy(dtype=object) if "measure_next" in walls else ""
+    text = text + np.where((text != "") & (measure != ""), "; measure: " + measure, "")
+    bad = walls["data_inconsistent"].fillna(False).to_numpy(dtype=bool)
+    check_text = np.where(
+        measure != "",
+        "the recorded figures say this wall should not be standing: check the data first, likeliest "
+        + measure,
+        "the recorded figures say this wall should not be standing (no draw stands): check the data first",
+    )
+    text = np.where(text == "", "failure less likely than 1 in 1,000 given it stands today", text)
+    return np.where(bad, check_text, text).astype(object)
 
 
 def consequence(
@@ -125,8 +209,8 @@ def band(score: ArrayLike, settings: PrioritySettings) -> NDArray[np.str_]:
     t = settings.band_thresholds
     return np.select(
         [s >= t["inspect_first"], s >= t["inspect_soon"], s >= t["routine"]],
-        list(BANDS[:3]),
-        BANDS[3],
+        ["inspect_first", "inspect_soon", "routine"],
+        "low_concern",
     )
 
 
@@ -270,6 +354,10 @@ def reasons(
         == np.char.replace(parts[0].astype(str), "as surveyed ", "")
     )
     parts[1] = _when(~same, parts[1])
+    none_fail = (parts[0] == "") & (parts[1] == "")
+    if "p_failure" in by_case["surveyed"] and "data_inconsistent" in walls:
+        # with samples on the probabilities take the place of the utilisations (method.md §13)
+        parts = [probability_parts(walls, by_case)]
     parts.append(_drainage_part(walls))
     water, years = _critical_parts(walls)
     parts.append(water)
@@ -289,7 +377,7 @@ def reasons(
     below = np.char.replace(walls["consequence"].to_numpy(dtype=str), "_", " ").astype(object)
     parts.append(below + " below, " + _fmt(walls["height_m"], 1) + " m high")
     text = np.full(len(walls), "", dtype=object)
-    passes = _when((parts[0] == "") & (parts[1] == ""), "passes every check in every case")
+    passes = _when(none_fail, "passes every check in every case")
     for part in (_suspect_part(walls), passes, *parts):  # a data warning is said first
         text = text + np.where((text != "") & (part != ""), "; ", "") + part
     s = pd.Series(text, dtype=object)

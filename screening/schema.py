@@ -5,7 +5,7 @@ One glossary: these names are also the parameter names of the engine.
 
 from __future__ import annotations
 
-from screening.config import DRAINAGE_STATES, FOUNDATIONS, MATERIALS
+from screening.config import DIMENSION_SOURCES, DRAINAGE_STATES, FOUNDATIONS, MATERIALS
 from screening.core.engine import ENGINE_INPUTS as ENGINE_INPUTS  # the engine declares what it reads
 
 REQUIRED = ("wall_id", "height_m", "base_width_m", "top_width_m")
@@ -46,6 +46,7 @@ CODED = {
     "material": MATERIALS,
     "foundation": FOUNDATIONS,
     "drainage": DRAINAGE_STATES,
+    "dimensions_source": DIMENSION_SOURCES,
     # consequence classes come from the config (they are configurable)
     "consequence": None,
 }
@@ -64,6 +65,7 @@ COLUMNS = (
     "base_width_m",
     "top_width_m",
     "front_batter_m",
+    "dimensions_source",
     "retained_height_m",
     "lean_deg",
     "crack_height_m",
@@ -134,6 +136,8 @@ DESCRIPTIONS = {
     "base_width_m": "width of the base",
     "top_width_m": "width at the top",
     "front_batter_m": "horizontal set-back of the front face over the height (0 = vertical)",
+    "dimensions_source": "how the base width, top width and batter are known: measured, recorded "
+    "(from drawings or records; the default) or estimated",
     "retained_height_m": "retained ground above the underside of the base at the back (default: the height)",
     "lean_deg": "measured out-of-plumb, positive when the top leans outwards",
     "crack_height_m": "height of a known horizontal through-crack above the underside of the base",

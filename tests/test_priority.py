@@ -72,12 +72,17 @@ def test_rank_follows_priority_and_reasons_are_plain_words() -> None:
             ),
         ]
     )
-    walls = evaluate(reg).walls.set_index("wall_id")
+    walls = evaluate(reg, Config(samples=0)).walls.set_index("wall_id")
     assert walls.loc["RISKY", "rank"] == 1 and walls.loc["SAFE", "rank"] == 2
     assert walls.loc["RISKY", "priority_score"] > walls.loc["SAFE", "priority_score"]
     reason = walls.loc["RISKY", "reason"]
     assert "resultant falls outside the base" in reason
     assert "condition 4" in reason and "railway below" in reason and "lean 2.0°" in reason
+    # with samples on (method.md §13) the reason gives the chance instead of the utilisation
+    walls = evaluate(reg).walls.set_index("wall_id")
+    assert walls.loc["RISKY", "rank"] == 1
+    reason = walls.loc["RISKY", "reason"]
+    assert "given it stands today" in reason and "condition 4" in reason and "railway below" in reason
 
 
 def test_priority_settings_from_toml(tmp_path) -> None:

@@ -33,7 +33,9 @@ BAND_COLOURS = {
     "inspect_soon": "#C2A5CF",
     "routine": "#A6DBA0",
     "low_concern": "#008837",
+    "check_data": "#4D4D4D",  # figures that cannot be right (method.md §13): outside the sequence
 }
+LIGHT_TEXT_BANDS = ("inspect_first", "low_concern", "check_data")
 
 # (column, header with units, kind); kind: text (from the register: always a string),
 # word (our own words), num2, num3, int, bool
@@ -222,7 +224,7 @@ class _Formats:
             band: book.add_format(
                 {
                     "bg_color": colour,
-                    "font_color": "#FFFFFF" if band in ("inspect_first", "low_concern") else "#000000",
+                    "font_color": "#FFFFFF" if band in LIGHT_TEXT_BANDS else "#000000",
                 }
             )
             for band, colour in BAND_COLOURS.items()
