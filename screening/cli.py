@@ -249,8 +249,9 @@ def _screen_with_progress(
     options: MapOptions | None = None,
     sheets: bool = False,
     history: Path | None = None,
+    client: object = None,
 ) -> JobResult:
-    """Screen and write; a progress bar for registers large enough to wait for."""
+    """Screen and write; a progress bar for registers large enough to wait for (or on a cluster)."""
     from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
 
     cfg = load_config(config)
@@ -260,7 +261,7 @@ def _screen_with_progress(
         TextColumn("{task.description}"),
         TimeElapsedColumn(),
         console=console,
-        disable=not big,
+        disable=not (big or client is not None),
         transient=True,
     ) as bar:
         task = bar.add_task("reading and screening", total=None)
@@ -271,6 +272,7 @@ def _screen_with_progress(
             config=cfg,
             history=history,
             progress=lambda name: bar.update(task, description=name),
+            client=client,
         )
         if len(job.walls) == 0:
             _print_problems(job)
@@ -306,13 +308,25 @@ def run(
         typer.Option("--history", help="Run history GeoPackage [default: OUT/history.gpkg]"),
     ] = None,
     no_history: Annotated[bool, typer.Option("--no-history", help="Keep no run history")] = False,
+    workers: Annotated[
+        int | None,
+        typer.Option("--workers", help="Screen the chunks on a local Dask cluster of N worker processes"),
+    ] = None,
+    dask_address: Annotated[
+        str | None,
+        typer.Option("--dask", metavar="ADDRESS", help="Screen the chunks on a Dask scheduler, tcp://host:8786"),
+    ] = None,
 ) -> None:
     """Screen every wall in the drained, blocked and surveyed cases and write the outputs."""
+    from screening.distributed import check_options, dask_client
+
     options = MapOptions(map_assets_url, map_assets_dir, map_tiles)
     hist = None if no_history else (history or out / "history.gpkg")
     try:
         options.check()
-        job = _screen_with_progress(register, out, mapping, sheet, config, options, sheets, hist)
+        check_options(workers, dask_address)
+        with dask_client(workers, dask_address) as client:
+            job = _screen_with_progress(register, out, mapping, sheet, config, options, sheets, hist, client)
     except ScreeningError as exc:
         raise _fail(exc) from None
     _print_problems(job)

@@ -113,10 +113,12 @@ def screen_file(
     config: Config | None = None,
     history: str | Path | None = None,
     progress: Progress | None = None,
+    client: Any = None,
 ) -> JobResult:
     """Load, screen and locate a register file, without writing anything.
 
-    With a ``history`` file, earlier surveys recorded there count towards each wall's lean rate.
+    With a ``history`` file, earlier surveys recorded there count towards each wall's lean rate;
+    with a ``distributed.Client``, the chunks are screened on its cluster.
     """
     from screening.history import lean_points
 
@@ -129,6 +131,7 @@ def screen_file(
         shown=loaded.shown,
         history_points=lean_points(history),
         progress=progress,
+        client=client,
     )
     info = RunInfo(
         input_file=Path(register_path).name,
