@@ -281,8 +281,9 @@ def _screen_with_progress(
     history: Path | None = None,
     crs: str | None = None,
     draws: tuple[int | None, int | None] = (None, None),
+    client: object = None,
 ) -> JobResult:
-    """Screen and write; a progress bar for registers large enough to wait for."""
+    """Screen and write; a progress bar for registers large enough to wait for (or on a cluster)."""
     from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
 
     cfg = _with_draws(load_config(config), *draws)
@@ -292,7 +293,7 @@ def _screen_with_progress(
         TextColumn("{task.description}"),
         TimeElapsedColumn(),
         console=console,
-        disable=not big,
+        disable=not (big or client is not None),
         transient=True,
     ) as bar:
         task = bar.add_task("reading and screening", total=None)
@@ -304,6 +305,7 @@ def _screen_with_progress(
             history=history,
             progress=lambda name: bar.update(task, description=name),
             crs=crs,
+            client=client,
         )
         if len(job.walls) == 0:
             _print_problems(job)
@@ -357,16 +359,40 @@ def run(
     seed: Annotated[
         int | None, typer.Option("--seed", help="Seed of the draws (same seed, same figures)")
     ] = None,
+    workers: Annotated[
+        int | None,
+        typer.Option("--workers", help="Screen the chunks on a local Dask cluster of N worker processes"),
+    ] = None,
+    dask_address: Annotated[
+        str | None,
+        typer.Option(
+            "--dask", metavar="ADDRESS", help="Screen the chunks on a Dask scheduler, tcp://host:8786"
+        ),
+    ] = None,
 ) -> None:
     """Screen every wall in the drained, blocked and surveyed cases and write the outputs."""
+    from screening.distributed import check_options, dask_client
+
     options = MapOptions(map_assets_url, map_assets_dir, map_tiles)
     hist = None if no_history else (history or out / "history.gpkg")
     try:
         options.check()
         _refuse_unsafe_outputs(register, out, hist, mapping, config)
-        job = _screen_with_progress(
-            register, out, mapping, sheet, config, options, sheets, hist, crs, draws=(samples, seed)
-        )
+        check_options(workers, dask_address)
+        with dask_client(workers, dask_address) as client:
+            job = _screen_with_progress(
+                register,
+                out,
+                mapping,
+                sheet,
+                config,
+                options,
+                sheets,
+                hist,
+                crs,
+                draws=(samples, seed),
+                client=client,
+            )
     except ScreeningError as exc:
         raise _fail(exc) from None
     except OSError as exc:

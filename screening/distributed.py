@@ -135,7 +135,7 @@ def dask_client(
             n_workers=workers,
             threads_per_worker=1,
             processes=True,
-            dashboard_address=None,
+            dashboard_address=":0",
             silence_logs=logging.ERROR,
         ) as cluster,
         distributed.Client(cluster, set_as_default=False) as client,

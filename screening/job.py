@@ -142,10 +142,12 @@ def screen_file(
     history: str | Path | None = None,
     progress: Progress | None = None,
     crs: str | None = None,
+    client: Any = None,
 ) -> JobResult:
     """Load, screen and locate a register file, without writing anything.
 
-    With a ``history`` file, earlier surveys recorded there count towards each wall's lean rate.
+    With a ``history`` file, earlier surveys recorded there count towards each wall's lean rate;
+    with a ``distributed.Client``, the chunks are screened on its cluster.
     """
     from screening.history import lean_points
 
@@ -161,6 +163,7 @@ def screen_file(
         shown=loaded.shown,
         history_points=lean_points(history),
         progress=progress,
+        client=client,
     )
     info = RunInfo(
         input_file=Path(register_path).name,

@@ -483,12 +483,15 @@ def evaluate(
     history_points: pd.DataFrame | None = None,
     progress: Progress | None = None,
     runner: Runner | None = None,
+    client: object = None,
     **kwargs: object,
 ) -> Screening:
     """Prepare and screen a register; keep problems, assumptions and the per-wall summary.
 
     The walls go through :func:`evaluate_chunk` in chunks of ``config.chunk_size`` by way of
     ``runner`` (default :class:`LocalRunner`, in this process).
+    With a ``distributed.Client`` and no runner, the chunks run on
+    its cluster (:class:`screening.distributed.DaskRunner`, the extra ``wallscreen[dask]``).
     """
     config = config or Config()
     prepared = prepare(register, config, **kwargs)  # type: ignore[arg-type]
@@ -496,6 +499,10 @@ def evaluate(
     if len(prepared.walls) == 0:
         empty = pd.DataFrame({c: pd.Series(dtype=object) for c in RESULT_COLUMNS})
         return Screening(prepared, empty, pd.DataFrame(), prepared.problems, config)
+    if runner is None and client is not None:
+        from screening.distributed import DaskRunner
+
+        runner = DaskRunner(client, progress)
     results, per_wall = _run_chunks(prepared, config, runner or LocalRunner(), progress)
     summary = summarise_walls(results, prepared.walls)
     summary = summary.join(per_wall)
