@@ -27,6 +27,7 @@ FOUNDATIONS = ("rock", "gravel", "sand", "stiff_clay", "firm_clay", "soft_clay")
 DRAINAGE_STATES = ("working", "partial", "blocked", "unknown")
 CONSEQUENCES = ("railway", "road", "building", "footpath", "open_land")
 CASES = ("drained", "blocked", "surveyed")
+PAPER_SIZES = ("A4", "A3", "letter", "legal")
 
 
 def _frozen(mapping: Mapping[str, Any]) -> Mapping[str, Any]:
@@ -187,6 +188,8 @@ class Config:
     workbook_full_results_limit: int = 1_000
     """Registers with more walls keep only this many walls, first in the ranking, on the
     workbook's per-case sheet (results.csv always has every wall)."""
+    paper: str = "A4"
+    """Paper the workbook and the calculation sheets are laid out for: A4, A3, letter or legal."""
     # --- run
     chunk_size: int = 20_000
     """Walls screened per pass; larger registers go through the engine in chunks, which bounds
@@ -253,6 +256,7 @@ def _validate(c: Config) -> None:
         c.passive_mobilisation,
         "a share from 0 to 1",
     )
+    need(c.paper in PAPER_SIZES, "paper", c.paper, f"one of {', '.join(PAPER_SIZES)}")
     need(c.toe_excavation_m >= 0, "toe_excavation_m", c.toe_excavation_m, "a depth of 0 m or more")
     for case, crit in c.criteria.items():
         need(case in CASES, "criteria", case, f"a table per case, named from {CASES}")

@@ -339,6 +339,7 @@ def write_outputs(
         provenance=provenance(job),
         changes=job.changes,
         full_results_limit=job.info.config.workbook_full_results_limit,
+        paper=job.info.config.paper,
     )
     step("GeoPackage")
     outputs["geopackage"] = write_geopackage(job.walls, job.geometry, out / "walls.gpkg")
