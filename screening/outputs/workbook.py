@@ -29,12 +29,17 @@ CAUTION = (
 )
 
 BAND_COLOURS = {
-    # a colour-blind-safe sequence of our own (dark to light), shared with the map
-    "inspect_first": "#7B3294",
-    "inspect_soon": "#C2A5CF",
-    "routine": "#A6DBA0",
-    "low_concern": "#008837",
+    # Paul Tol's "muted" qualitative scheme, designed to stay distinct with the common colour-vision
+    # deficiencies (P. Tol, "Colour schemes", SRON technical note, 2021), shared with the map: each
+    # has a WCAG 2 contrast ratio of at least 3:1 against the map's land colour (BASE_MAP_LAND)
+    "inspect_first": "#882255",  # wine
+    "inspect_soon": "#CC6677",  # rose
+    "routine": "#117733",  # green
+    "low_concern": "#332288",  # indigo
 }
+BASE_MAP_LAND = "#F2EFE9"
+"""The land colour of the OpenStreetMap standard style's tiles (assumed: the style's documented
+background, common practice, no measurement of our own); the band colours are checked against it."""
 
 # (column, header with units, kind); kind: text (from the register: always a string),
 # word (our own words), num2, num3, int, bool
@@ -245,7 +250,7 @@ class _Formats:
             band: book.add_format(
                 {
                     "bg_color": colour,
-                    "font_color": "#FFFFFF" if band in ("inspect_first", "low_concern") else "#000000",
+                    "font_color": "#FFFFFF",
                 }
             )
             for band, colour in BAND_COLOURS.items()
