@@ -4,6 +4,9 @@
 from __future__ import annotations
 
 import math
+import re
+import shutil
+import subprocess
 import textwrap
 from pathlib import Path
 
@@ -16,6 +19,8 @@ from typer.testing import CliRunner
 from screening.cli import app
 from screening.config import PAPER_SIZES, Config
 from screening.errors import ConfigError
+from screening.outputs import sheet_filename
+from screening.outputs.sheets import css_string
 from screening.outputs.workbook import (
     FILTER_BUTTON,
     HEADER_LINES,
@@ -171,3 +176,67 @@ def test_utilisation_columns_hold_only_numbers(book_dir: Path) -> None:
         state = sheet.cell(rows["B15"], headers.index("Base state (worst case)") + 1).value
         util = sheet.cell(rows["B15"], headers.index("Utilisation (worst) [-]") + 1).value
         assert state == "resultant outside base" and util == UTILISATION_CAP, name
+
+
+# ---------------------------------------------------------------- the calculation sheet on paper
+
+
+@pytest.fixture(scope="module")
+def sheet_dir(tmp_path_factory) -> Path:
+    tmp = tmp_path_factory.mktemp("sheet")
+    reg = _register(tmp)
+    result = runner.invoke(app, ["explain", str(reg), "B15", "B25", "-o", str(tmp / "out")])
+    assert result.exit_code == 0, result.output
+    return tmp / "out" / "sheets"
+
+
+def _pdf_pages(pdf: bytes) -> int:
+    # page objects of the PDF (ISO 32000-1 §7.7.3.3: a page is a dictionary of /Type /Page)
+    return len(re.findall(rb"/Type\s*/Page(?![a-zA-Z])", pdf))
+
+
+@pytest.mark.browser
+def test_calculation_sheet_prints_on_two_or_three_a4_pages(sheet_dir: Path) -> None:
+    from tests.browser import browser_page
+
+    pages = {}
+    with browser_page() as page:
+        for wall in ("B15", "B25"):
+            page.goto((sheet_dir / sheet_filename(wall)).as_uri())
+            page.emulate_media(media="print")
+            # no table is split across two pages, in the print layout
+            breaks = page.eval_on_selector_all("table", "ts => ts.map(t => getComputedStyle(t).breakInside)")
+            assert breaks and set(breaks) == {"avoid"}, wall
+            assert page.locator("table.checked").inner_text().lower().count("checked by") == 1
+            pdf = page.pdf(prefer_css_page_size=True)
+            pages[wall] = _pdf_pages(pdf)
+            (sheet_dir / f"{wall}.pdf").write_bytes(pdf)
+            # A4 is 595 x 842 points (ISO 216)
+            box = re.search(rb"/MediaBox\s*\[\s*0 0 ([\d.]+) ([\d.]+)", pdf)
+            assert box and abs(float(box[1]) - 595.3) < 1 and abs(float(box[2]) - 841.9) < 1, wall
+    assert all(2 <= n <= 3 for n in pages.values()), pages
+    pdftotext = shutil.which("pdftotext")
+    if pdftotext is None:
+        return
+    text = subprocess.run(
+        [pdftotext, "-layout", str(sheet_dir / "B15.pdf"), "-"], capture_output=True, text=True, check=True
+    ).stdout
+    per_page = text.split("\f")[: pages["B15"]]
+    for k, body in enumerate(per_page, start=1):
+        assert "Calculation sheet: wall B15" in body, k  # the wall id on every page
+        assert f"page {k} of {pages['B15']}" in body, k
+
+
+def test_running_head_cannot_break_out_of_the_style_sheet() -> None:
+    head = css_string('W"1</style><script>alert(1)</script>')
+    assert head.startswith('"') and head.endswith('"') and '"' not in head[1:-1]
+    assert "<" not in head and ">" not in head
+    # CSS Syntax Level 3 §4.3.7: a backslash and up to six hex digits name the code point
+    assert "\\00003c" in head and "\\000022" in head
+
+
+def test_sheet_is_laid_out_for_the_paper_setting(sheet_dir: Path) -> None:
+    page = (sheet_dir / sheet_filename("B15")).read_text()
+    assert re.search(r"@page \{ size: A4;", page)
+    assert 'content: "Calculation sheet: wall " "B15"' in page
+    assert 'counter(page) " of " counter(pages)' in page
