@@ -30,6 +30,7 @@ FOUNDATIONS = ("rock", "gravel", "sand", "stiff_clay", "firm_clay", "soft_clay")
 DRAINAGE_STATES = ("working", "partial", "blocked", "unknown")
 CONSEQUENCES = ("railway", "road", "building", "footpath", "open_land")
 CASES = ("drained", "blocked", "surveyed")
+PAPER_SIZES = ("A4", "A3", "letter", "legal")
 
 
 # a frozen mapping pickles as its plain dict, so that Config pickles (chunks sent to other processes)
@@ -236,6 +237,8 @@ class Config:
     """Cells a sheet may span (rows x columns of its extent, stray far cells included)."""
     max_sheet_mb: float = 200.0
     """Uncompressed size a sheet (and the shared strings) may have [MB]."""
+    paper: str = "A4"
+    """Paper the workbook and the calculation sheets are laid out for: A4, A3, letter or legal."""
     # --- run
     chunk_size: int = 20_000
     """Walls screened per pass; larger registers go through the engine in chunks, which bounds
@@ -425,6 +428,7 @@ def _validate(c: Config) -> None:
         value = getattr(c, name)
         need(isinstance(value, int) and not isinstance(value, bool), name, value, "a whole number")
     _validate_uncertainty(c, need)
+    need(c.paper in PAPER_SIZES, "paper", c.paper, f"one of {', '.join(PAPER_SIZES)}")
     _validate_criteria(c, need)
 
 

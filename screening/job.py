@@ -421,6 +421,7 @@ def write_outputs(
         changes=job.changes,
         full_results_limit=job.info.config.workbook_full_results_limit,
         near_toe_m=job.info.config.resultant_near_toe_m,
+        paper=job.info.config.paper,
     )
     step("GeoPackage")
     outputs["geopackage"] = write_geopackage(job.walls, job.geometry, out / "walls.gpkg")

@@ -141,6 +141,8 @@ def test_sample_map_renders_in_chromium(sample_run: Path) -> None:
         page.on("pageerror", lambda e: errors.append(str(e)))
         page.goto((sample_run / "map.html").as_uri())
         page.wait_for_function("window.wallscreenMap !== undefined")
+        page.get_by_text("Worst case").click()  # the map opens on the priority bands
+        page.wait_for_timeout(200)
         # every located wall is drawn: one SVG path each
         drawn = page.evaluate(
             """() => { const out = {}; const w = window.wallscreenMap;

@@ -4,6 +4,7 @@
 // Register text is only ever assigned with textContent, never parsed as HTML.
 (function () {
   var C = window.wallscreenConfig;
+  if (typeof window.L === "undefined") { libraryMissing(C.settings.leaflet); return; }
   var map = window[C.map];
   var D = C.data;
   var S = C.settings;
@@ -12,9 +13,9 @@
   var CHECK_NAMES = {middle_third: "middle third", bearing: "bearing", sliding: "sliding",
     overturning: "overturning", crack_middle_third: "crack: middle third", crack_sliding: "crack: sliding",
     crack_overturning: "crack: overturning", vertical_load: "uplift exceeds weight"};
-  var views = [["Worst case", -1]];
+  // the map opens on the first view: the priority bands
+  var views = [["Priority band", "band"], ["Worst case", -1]];
   D.cases.forEach(function (c, k) { views.push(["Case: " + CASE_NAMES[c], k]); });
-  views.push(["Priority band", "band"]);
   var renderer = S.canvas ? L.canvas({padding: 0.5}) : undefined;
 
   function el(tag, text, cls) {
@@ -101,8 +102,23 @@
     return pts.length === 1 ? L.circleMarker(pts[0], st) : L.polyline(pts, st);
   }
 
+  // ids are kept as written: W1 and w1 are two walls
   var index = {};
-  for (var i = 0; i < n; i++) index[D.id[i].toLowerCase()] = i;
+  for (var i = 0; i < n; i++) index[D.id[i]] = i;
+  var folded = {};
+  for (var j = 0; j < n; j++) {
+    var key = D.id[j].toLowerCase();
+    (folded[key] = folded[key] || []).push(D.id[j]);
+  }
+  // the wall a search means: its id exactly, else the one id equal ignoring case (never a guess)
+  function findWall(text) {
+    if (index[text] !== undefined) return {id: text};
+    var same = folded[text.toLowerCase()] || [];
+    if (same.length === 1) return {id: same[0]};
+    if (same.length > 1) return {msg: same.length + " walls differ only by case (" + same.join(", ") +
+      "): type the id exactly"};
+    return {msg: "No wall with that id on the map"};
+  }
   var built = {};
   var groups = {};
   var current = null;
@@ -115,7 +131,7 @@
       layer.wsIndex = i;
       layer.bindTooltip(tooltip.bind(null, i), {sticky: true});
       layer.bindPopup(popup.bind(null, i), {maxWidth: 460, autoPanPaddingBottomRight: L.point(20, 180)});
-      byId[D.id[i].toLowerCase()] = layer;
+      byId[D.id[i]] = layer;
       g.addLayer(layer);
     }
     built[name] = {layer: g, byId: byId};
@@ -135,9 +151,9 @@
     var notes = S.extra[name];
     var g = L.featureGroup();
     Object.keys(notes).forEach(function (id) {
-      var i = index[id.toLowerCase()];
+      var i = index[id];
       if (i === undefined) return;
-      var layer = shape(i, {color: "#FFD400", weight: 11, opacity: 0.55, radius: 11, fillOpacity: 0.3});
+      var layer = shape(i, {color: S.overlayColour, weight: 11, opacity: 0.55, radius: 11, fillOpacity: 0.3});
       layer.bindTooltip(function () { var d = tooltip(i); d.appendChild(el("div", notes[id])); return d; },
                         {sticky: true});
       g.addLayer(layer);
@@ -162,7 +178,17 @@
         s.style.background = c; r.appendChild(s); r.appendChild(el("span", S.marginText[k]));
         d.appendChild(r); });
     }
+    overlayLegend(d);
   };
+  // one entry per overlay (e.g. the walls changed since the last run), drawn as on the map
+  function overlayLegend(d) {
+    Object.keys(S.extra).forEach(function (name) {
+      var r = el("div", null, "ws-overlay"); var s = el("span", null, "sw halo");
+      s.style.background = S.overlayColour; r.appendChild(s);
+      r.appendChild(el("span", name + " (" + Object.keys(S.extra[name]).length + ", halo; switch on top right)"));
+      d.appendChild(r);
+    });
+  }
   legend.addTo(map);
 
   var base = {};
@@ -180,10 +206,10 @@
     L.DomEvent.disableClickPropagation(d);
     input.addEventListener("keydown", function (ev) {
       if (ev.key !== "Enter") return;
-      var key = input.value.trim().toLowerCase();
-      if (index[key] === undefined) { msg.textContent = "No wall with that id on the map"; return; }
+      var found = findWall(input.value.trim());
+      if (found.msg) { msg.textContent = found.msg; return; }
       msg.textContent = "";
-      var layer = built[current[0]].byId[key];
+      var layer = built[current[0]].byId[found.id];
       if (layer.getLatLng) map.setView(layer.getLatLng(), 18);
       else map.fitBounds(layer.getBounds(), {maxZoom: 18});
       layer.openPopup();
@@ -195,4 +221,24 @@
     map.fitBounds(S.bounds, {paddingTopLeft: [20, 20], paddingBottomRight: [20, 170]});
   }
   window.wallscreenMap = {map: map, built: built, count: n, data: D};
+
+  // Leaflet did not load (no internet, or the address blocked): say so in the page itself
+  function libraryMissing(url) {
+    var box = document.createElement("div");
+    box.id = "ws-no-library";
+    box.setAttribute("role", "alert");
+    var lines = [
+      "The map library (Leaflet) could not be loaded from " + url + ", so the walls cannot be drawn.",
+      "This computer may be offline, or the address may be blocked. The walls are all in the workbook " +
+        "(report.xlsx) and in walls.csv.",
+      "To make a map that opens without the internet, write it again with Leaflet inlined: " +
+        "wallscreen map RESULTS-FOLDER --map-assets-dir FOLDER, where FOLDER holds leaflet.js and " +
+        "leaflet.css (the same option works with wallscreen run). The background tiles still need a " +
+        "tile server (--map-tiles)."
+    ];
+    lines.forEach(function (t, k) {
+      var p = document.createElement(k ? "p" : "b"); p.textContent = t; box.appendChild(p);
+    });
+    document.body.appendChild(box);
+  }
 })();

@@ -47,6 +47,8 @@ MARGIN_CLASSES: Sequence[tuple[float, str, str]] = (
     (np.inf, "#B2182B", "over 1.5: fails clearly (toe pressure, sliding or overturning)"),
 )
 OVERTURNS_COLOUR = "#1A1A1A"
+OVERLAY_COLOUR = "#FFD400"
+"""The halo of an overlay (e.g. the walls changed since the last run), under the wall's colour."""
 OVERTURNS_TEXT = "resultant outside the base: the wall overturns in this case"
 
 CAUTION = (
@@ -291,7 +293,8 @@ def build_map(
     unlocated = int((~walls["located"].astype(bool)).sum())
     box = _info_box(title, subtitle, drawn=n, unlocated=unlocated)
     root.html.add_child(folium.Element(_with_carried(box, carried or [])))
-    settings = _settings(bounds, extra_layers or {}, canvas=n > CANVAS_FROM)
+    leaflet = "the page itself" if assets_dir is not None else (assets_url or LEAFLET_CDN).rstrip("/")
+    settings = _settings(bounds, extra_layers or {}, canvas=n > CANVAS_FROM, leaflet_url=leaflet)
     config = {"map": m.get_name(), "data": data, "settings": settings}
     return MapPage(m, _script_json(config))
 
@@ -369,7 +372,9 @@ def _with_carried(box: str, carried: list[str], shown: int = 10) -> str:
     return f"{head}{block}{sep}{tail}"
 
 
-def _settings(bounds: list[list[float]], extra_layers: dict[str, Any], *, canvas: bool) -> dict[str, Any]:
+def _settings(
+    bounds: list[list[float]], extra_layers: dict[str, Any], *, canvas: bool, leaflet_url: str = ""
+) -> dict[str, Any]:
     """What the page's script needs besides the walls: colours, legend words, bounds, overlays."""
     return {
         "cases": list(CASES),
@@ -380,6 +385,8 @@ def _settings(bounds: list[list[float]], extra_layers: dict[str, Any], *, canvas
         "bandText": [BAND_LABELS[b] for b in BANDS],
         "bounds": bounds,
         "extra": extra_layers,
+        "overlayColour": OVERLAY_COLOUR,
+        "leaflet": leaflet_url,
         "canvas": canvas,
     }
 

@@ -9,6 +9,7 @@ came from the register is always written as a string cell, so a value such as
 from __future__ import annotations
 
 import json
+import textwrap
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
@@ -28,14 +29,18 @@ CAUTION = (
 )
 
 BAND_COLOURS = {
-    # a colour-blind-safe sequence of our own (dark to light), shared with the map
-    "inspect_first": "#7B3294",
-    "inspect_soon": "#C2A5CF",
-    "routine": "#A6DBA0",
-    "low_concern": "#008837",
+    # Paul Tol's "muted" qualitative scheme, designed to stay distinct with the common colour-vision
+    # deficiencies (P. Tol, "Colour schemes", SRON technical note, 2021), shared with the map: each
+    # has a WCAG 2 contrast ratio of at least 3:1 against the map's land colour (BASE_MAP_LAND)
+    "inspect_first": "#882255",  # wine
+    "inspect_soon": "#CC6677",  # rose
+    "routine": "#117733",  # green
+    "low_concern": "#332288",  # indigo
     "check_data": "#4D4D4D",  # figures that cannot be right (method.md §13): outside the sequence
 }
-LIGHT_TEXT_BANDS = ("inspect_first", "low_concern", "check_data")
+BASE_MAP_LAND = "#F2EFE9"
+"""The land colour of the OpenStreetMap standard style's tiles (assumed: the style's documented
+background, common practice, no measurement of our own); the band colours are checked against it."""
 
 # (column, header with units, kind); kind: text (from the register: always a string),
 # word (our own words), num2, num3, int, bool
@@ -86,6 +91,7 @@ LOOK_FIRST_COLUMNS = (
     "priority_score",
     "reason",
     "utilisation",
+    "state",
     "sheet",
 )
 """The columns of SUMMARY_COLUMNS shown on 'Look first'."""
@@ -225,6 +231,12 @@ METHOD_TEXT: list[tuple[str, str]] = [
         "pressure; utilisation V·F_b/R.",
     ),
     (
+        "Utilisation columns",
+        "Numbers throughout, so that filters and sorting work: a utilisation of 999 or more, an "
+        "infinite one included (the resultant outside the base), is written as 999 and shown as "
+        "'≥ 999'; the state column says why, and results.csv keeps the value itself.",
+    ),
+    (
         "Not included",
         "Global (deep-seated) stability, the structural capacity of the masonry, passive "
         "resistance in front of the toe, seismic loads, and the condition of the fill itself.",
@@ -235,31 +247,54 @@ METHOD_TEXT: list[tuple[str, str]] = [
 EXCEL_MAX_ROWS = 1_048_576
 """Rows in one worksheet (Excel's limit)."""
 
+PAPER_CODES = {"A4": 9, "A3": 8, "letter": 1, "legal": 5}
+"""xlsxwriter's paper index of each paper size the ``paper`` setting accepts."""
+PORTRAIT_CHARS = 95
+"""Column widths (in characters) that print across portrait paper near full size; a sheet
+whose columns add up to more prints landscape."""
+HEADER_LINES = 3
+"""Lines a header may wrap onto (the header row is 45 points high: three lines of 11 points)."""
+FILTER_BUTTON = 3
+"""Characters of a header cell that the filter drop-down button covers."""
+WRAP_FROM = 30
+"""Text columns at least this wide wrap their cells (reasons, messages, sources)."""
+ROW_POINTS = 15
+"""Height of one line of 11-point text in a row [points]."""
+WORD_BREAK = 12
+"""Characters a wrapped line may leave empty when the next word does not fit."""
+UTILISATION_CAP = 999.0
+"""Utilisation columns hold numbers only, so that filters and sorting work: a value of 999 or
+more, an infinite one included (the resultant outside the base), is written as 999 and shown
+as "≥ 999"; the state column says why, and results.csv keeps the value itself."""
+UTILISATION_FORMAT = '[>=999]"≥ 999";0.00'
+
 
 class _Formats:
     def __init__(self, book: xlsxwriter.Workbook):
         self.header = book.add_format(
             {"bold": True, "text_wrap": True, "valign": "top", "bg_color": "#E8E8E8", "border": 1}
         )
-        # right-aligned so that "∞" lines up with the numbers
-        self.num2 = book.add_format({"num_format": "0.00", "align": "right"})
-        self.num3 = book.add_format({"num_format": "0.000", "align": "right"})
-        self.int = book.add_format({"num_format": "0", "align": "right"})
+        # right-aligned so that "∞" (outside the utilisation columns) lines up with the numbers
+        self.num2 = book.add_format({"num_format": "0.00", "align": "right", "valign": "top"})
+        self.num3 = book.add_format({"num_format": "0.000", "align": "right", "valign": "top"})
+        self.util = book.add_format({"num_format": UTILISATION_FORMAT, "align": "right", "valign": "top"})
+        self.int = book.add_format({"num_format": "0", "align": "right", "valign": "top"})
+        self.top = book.add_format({"valign": "top"})
         self.right = book.add_format({"align": "right"})
         self.wrap = book.add_format({"text_wrap": True, "valign": "top"})
         self.title = book.add_format({"bold": True, "font_size": 14})
-        self.bold = book.add_format({"bold": True})
+        self.bold = book.add_format({"bold": True, "valign": "top"})
         self.caution = book.add_format(
             {"italic": True, "text_wrap": True, "font_color": "#7A1F1F", "valign": "top"}
         )
-        self.link = book.add_format({"font_color": "#1F4E99", "underline": 1})
+        self.link = book.add_format({"font_color": "#1F4E99", "underline": 1, "valign": "top"})
         self.over = book.add_format({"bg_color": "#F4CCCC", "font_color": "#7A1F1F"})
         self.near = book.add_format({"bg_color": "#FFF2CC"})
         self.band = {
             band: book.add_format(
                 {
                     "bg_color": colour,
-                    "font_color": "#FFFFFF" if band in LIGHT_TEXT_BANDS else "#000000",
+                    "font_color": "#FFFFFF",
                 }
             )
             for band, colour in BAND_COLOURS.items()
@@ -268,7 +303,13 @@ class _Formats:
 
 def _column_values(values: pd.Series, kind: str) -> list[Any]:
     """A column as the Python values ``write_row`` takes, converted column-wise:
-    None for blanks, "∞" for infinity, labels for our coded words."""
+    None for blanks, "∞" for infinity (utilisations: :data:`UTILISATION_CAP`), labels for our
+    coded words."""
+    if kind == "util":
+        u = pd.to_numeric(values, errors="coerce").to_numpy(dtype=float)
+        capped = np.clip(u, -UTILISATION_CAP, UTILISATION_CAP).astype(object)
+        capped[np.isnan(u)] = None
+        return capped.tolist()
     if kind in ("num2", "num3", "int"):
         v = pd.to_numeric(values, errors="coerce").to_numpy(dtype=float)
         out = v.astype(object)
@@ -321,30 +362,99 @@ def _table(
         )
         frame = frame.head(room)
     sheet.set_row(start_row, 45)
-    formats = {"num2": f.num2, "num3": f.num3, "int": f.int, "num3_or_words": f.num3}
+    cols = [(name, header, _print_kind(name, kind)) for name, header, kind in cols]
     for c, (name, header, kind) in enumerate(cols):
         sheet.write_string(start_row, c, header, f.header)
-        width = (widths or {}).get(name, max(10, min(len(header) + 2, 22)))
-        sheet.set_column(c, c, width, formats.get(kind))
+        width = _column_width(name, header, widths)
+        sheet.set_column(c, c, width, _column_format(f, kind, width))
     links = [c for c, (_, _, kind) in enumerate(cols) if kind == "link"]
     data = [
         [None] * len(frame) if kind == "link" else _column_values(frame[name], kind) for name, _, kind in cols
     ]
     link_values = {c: frame[cols[c][0]].to_numpy(dtype=object) for c in links}
+    heights = _row_heights(frame, cols, widths)
     for i, row in enumerate(zip(*data, strict=True)):
         r = start_row + 1 + i
+        if heights[i]:
+            sheet.set_row(r, heights[i])
         sheet.write_row(r, 0, row)
         for c in links:
             target = link_values[c][i]
             if isinstance(target, str) and target:
                 sheet.write_url(r, c, f"external:{target}", f.link, string="open sheet")
     last = start_row + len(frame)
-    sheet.set_landscape()
-    sheet.fit_to_pages(1, 0)
-    sheet.repeat_rows(start_row)
     sheet.freeze_panes(start_row + 1, 2 if len(cols) > 2 else 0)
     sheet.autofilter(start_row, 0, max(last, start_row), len(cols) - 1)
     return last
+
+
+def _print_kind(name: str, kind: str) -> str:
+    """The kind a column is written as: numeric utilisation columns become "util" (capped)."""
+    return "util" if "utilisation" in name and kind in ("num2", "num3") else kind
+
+
+def _header_width(header: str) -> int:
+    """The narrowest column (in characters) that shows ``header`` whole on at most
+    :data:`HEADER_LINES` lines, wrapped at spaces and never inside a word, beside the filter
+    button (:data:`FILTER_BUTTON`)."""
+    width = max(len(w) for w in header.split())
+    while len(textwrap.wrap(header, width, break_long_words=False)) > HEADER_LINES:
+        width += 1
+    return width + FILTER_BUTTON
+
+
+def _column_width(name: str, header: str, widths: dict[str, int] | None) -> int:
+    """A column's width: as given, else from the header (10 to 22), never narrower than its header."""
+    width = (widths or {}).get(name, max(10, min(len(header) + 2, 22)))
+    return max(width, _header_width(header))
+
+
+def _column_format(f: _Formats, kind: str, width: int) -> Any:
+    """The column format of a kind: a number format, or wrapping for wide text columns."""
+    if kind in ("word", "text") and width >= WRAP_FROM:
+        return f.wrap
+    return {"num2": f.num2, "num3": f.num3, "int": f.int, "util": f.util}.get(kind, f.top)
+
+
+def _row_heights(
+    frame: pd.DataFrame, cols: Sequence[tuple[str, str, str]], widths: dict[str, int] | None
+) -> Any:
+    """The height [points] each row needs for its wrapped cells, 0 for one line.
+
+    Neither Excel nor LibreOffice sizes the rows of a written file to wrapped text, so the
+    lines are estimated column-wise (:func:`_lines`).
+    """
+    lines = np.ones(len(frame), dtype=int)
+    for name, header, kind in cols:
+        width = _column_width(name, header, widths)
+        if kind in ("word", "text") and width >= WRAP_FROM:
+            chars = frame[name].astype(object).where(frame[name].notna(), "").astype(str).str.len()
+            lines = np.maximum(lines, _lines(chars.to_numpy(dtype=float), width))
+    return np.where(lines > 1, ROW_POINTS * lines, 0)
+
+
+def _lines(chars: Any, width: int) -> Any:
+    """Lines that text of ``chars`` characters takes in a wrapped column of ``width``: a character
+    per unit of width (proportional text is narrower than the digits the unit is measured in),
+    less :data:`WORD_BREAK` per line for the word carried to the next line."""
+    chars = np.asarray(chars, dtype=float)
+    return np.where(chars <= width, 1, np.ceil(chars / max(width - WORD_BREAK, 1))).astype(int)
+
+
+def _print_setup(sheet: Worksheet, paper: str, width: float, header_row: int | None) -> None:
+    """Paper size, landscape when the columns are wider than portrait paper, fit to the page
+    width (any number of pages down), the header row repeated on every printed page."""
+    sheet.set_paper(PAPER_CODES[paper])
+    if width > PORTRAIT_CHARS:
+        sheet.set_landscape()
+    else:
+        sheet.set_portrait()
+    sheet.fit_to_pages(1, 0)
+    sheet.center_horizontally()
+    sheet.set_margins(left=0.5, right=0.5, top=0.6, bottom=0.6)
+    sheet.set_footer("&L&A&RPage &P of &N")
+    if header_row is not None:
+        sheet.repeat_rows(header_row)
 
 
 def _colour_utilisation(
@@ -362,10 +472,6 @@ def _colour_utilisation(
     for c, name in enumerate(names):
         if "utilisation" in name:
             rng = (first, c, last, c)
-            # an infinite utilisation is written as the text "∞"
-            sheet.conditional_format(
-                *rng, {"type": "text", "criteria": "containing", "value": "∞", "format": f.over}
-            )
             sheet.conditional_format(*rng, {"type": "cell", "criteria": ">", "value": 1, "format": f.over})
             sheet.conditional_format(
                 *rng, {"type": "cell", "criteria": "between", "minimum": 0.8, "maximum": 1, "format": f.near}
@@ -407,18 +513,20 @@ def write_workbook(
     full_results_limit: int = 1_000,
     look_first: int = 100,
     near_toe_m: float = 0.0,
+    paper: str = "A4",
 ) -> Path:
     """Write ``report.xlsx`` atomically. See the module docstring for the sheets.
 
     In constant-memory mode each sheet is written top to bottom and the sheets in the order
     they appear; the settings sheet comes after the tables so that it lists every table
-    cut at the row limit.
+    cut at the row limit. The workbook opens on 'Look first', its first sheet; every sheet
+    prints on ``paper`` (a key of :data:`PAPER_CODES`), fitted to the page width.
     """
 
     def build(tmp: Path) -> None:
-        out = _Book(tmp)
-        _ranked_sheet(out, walls)
+        out = _Book(tmp, paper)
         _look_first_sheet(out, walls, look_first, changes)
+        _ranked_sheet(out, walls)
         if "measure_next" in walls:
             _measure_next_sheet(out, walls)
         if changes is not None:
@@ -436,7 +544,10 @@ def write_workbook(
 class _Book:
     """The workbook being written, its formats, and the notes for the settings sheet."""
 
-    def __init__(self, path: Path):
+    def __init__(self, path: Path, paper: str = "A4"):
+        if paper not in PAPER_CODES:
+            raise ValueError(f"paper {paper!r}: expected one of {', '.join(PAPER_CODES)}")
+        self.paper = paper
         self.book = xlsxwriter.Workbook(
             str(path),
             {
@@ -464,6 +575,9 @@ class _Book:
     ) -> int:
         """:func:`_table`, then the utilisation and band colours if ``coloured``."""
         last = _table(self.notes, sheet, frame, columns, self.f, widths=widths, start_row=start_row)
+        shown = [(name, header) for name, header, _ in columns if name in frame.columns]
+        width = sum(_column_width(name, header, widths) for name, header in shown)
+        _print_setup(sheet, self.paper, width, start_row)
         if coloured:
             _colour_utilisation(sheet, frame, columns, self.f, start_row=start_row)
         return last
@@ -482,6 +596,7 @@ def _look_first_sheet(
     if len(first) < 10:
         first = walls.head(min(look_first, max(10, len(first))))
     sheet = out.sheet("Look first")
+    sheet.activate()  # the sheet the workbook opens on
     sheet.write_string(
         0,
         0,
@@ -613,9 +728,14 @@ def _settings_sheet(out: _Book, provenance: list[tuple[str, Any]], settings: dic
     """Where the run came from, the notes of the sheets cut short, then every setting."""
     sheet = out.sheet("Settings")
     sheet.set_column(0, 0, 34)
-    sheet.set_column(1, 1, 100)
-    r = _key_value(sheet, [*provenance, *_criteria_rows(settings), *(("note", t) for t in out.notes)], out.f)
-    _key_value(sheet, _flatten(settings), out.f, start=r + 1)
+    sheet.set_column(1, 1, 100, out.f.wrap)
+    _print_setup(sheet, out.paper, 134, None)
+    rows = [*provenance, *_criteria_rows(settings), *(("note", t) for t in out.notes)]
+    _text_rows_height(sheet, [value for _, value in rows], 100)
+    r = _key_value(sheet, rows, out.f)
+    flat = _flatten(settings)
+    _text_rows_height(sheet, [value for _, value in flat], 100, start=r + 1)
+    _key_value(sheet, flat, out.f, start=r + 1)
 
 
 def _criteria_rows(settings: dict[str, Any]) -> list[tuple[str, Any]]:
@@ -645,12 +765,24 @@ def _criteria_rows(settings: dict[str, Any]) -> list[tuple[str, Any]]:
 def _method_sheet(out: _Book, method_text: list[tuple[str, str]]) -> None:
     sheet = out.sheet("Method and cautions")
     sheet.set_column(0, 0, 28)
-    sheet.set_column(1, 1, 110)
+    sheet.set_column(1, 1, 100, out.f.wrap)
+    _print_setup(sheet, out.paper, 128, None)
     sheet.write_string(0, 0, "Caution", out.f.title)
-    sheet.write_string(1, 0, CAUTION, out.f.caution)
+    sheet.set_row(1, 32)
+    sheet.merge_range(1, 0, 1, 1, CAUTION, out.f.caution)
+    _text_rows_height(sheet, [text for _, text in method_text], 100, start=3)
     for r, (head, text) in enumerate(method_text, start=3):
         sheet.write_string(r, 0, head, out.f.bold)
         sheet.write_string(r, 1, text, out.f.wrap)
+
+
+def _text_rows_height(sheet: Worksheet, texts: list[Any], width: int, start: int = 0) -> None:
+    """Heights of the rows from ``start`` whose text wraps in a column of ``width`` (set before
+    the rows are written, as constant-memory mode needs)."""
+    chars = [len(t) if isinstance(t, str) else 0 for t in texts]
+    for r, n in enumerate(_lines(chars, width), start=start):
+        if n > 1:
+            sheet.set_row(r, ROW_POINTS * int(n))
 
 
 def _assumption_summary(assumptions: pd.DataFrame) -> pd.DataFrame:
