@@ -342,6 +342,8 @@ def write_outputs(
     )
     step("GeoPackage")
     outputs["geopackage"] = write_geopackage(job.walls, job.geometry, out / "walls.gpkg")
+    step("Parquet")
+    outputs.update(write_parquet(job, out))
     step("map")
     outputs["map"] = render_map(job, out, map_options)
     if job.history is not None:
@@ -355,23 +357,32 @@ def write_outputs(
     return outputs
 
 
+def write_parquet(job: JobResult, out: Path) -> dict[str, Path]:
+    """``walls.parquet`` (GeoParquet) and ``results.parquet`` beside the CSVs."""
+    from screening.outputs.parquet import write_results_parquet, write_walls_parquet
+
+    results = job.screening.results.reindex(columns=list(RESULT_COLUMNS))
+    return {
+        "walls_parquet": write_walls_parquet(job.walls, job.geometry, out / "walls.parquet"),
+        "results_parquet": write_results_parquet(results, out / "results.parquet"),
+    }
+
+
 def rerender_map(results_dir: str | Path, options: MapOptions | None = None) -> Path:
     """Re-render ``map.html`` from the outputs of an earlier run (walls.gpkg, results.csv, run.json)."""
-    import geopandas as gpd
-
     from screening.errors import RegisterError
+    from screening.outputs.geopackage import read_geopackage
 
     folder = Path(results_dir)
     needed = [folder / "walls.gpkg", folder / "results.csv", folder / "run.json"]
     missing = [p.name for p in needed if not p.exists()]
     if missing:
         raise RegisterError(f"{folder}: not a wallscreen output folder (missing {', '.join(missing)})")
-    gdf = gpd.read_file(folder / "walls.gpkg", layer="walls")
+    walls, geometry = read_geopackage(folder / "walls.gpkg")
     results = pd.read_csv(folder / "results.csv", dtype={"wall_id": str})
     info = json.loads((folder / "run.json").read_text(encoding="utf-8"))
-    walls = pd.DataFrame(gdf.drop(columns="geometry"))
     walls["located"] = walls["located"].astype(bool)
-    geometry = np.array([g if g is not None and not g.is_empty else None for g in gdf.geometry], dtype=object)
+    geometry = np.array([g if g is not None and not g.is_empty else None for g in geometry], dtype=object)
     sheets = {
         str(w): f"sheets/{sheet_filename(str(w))}"
         for w in walls["wall_id"]
