@@ -204,7 +204,7 @@ def print_changes(changes: pd.DataFrame, limit: int = 12, where: str = "changes.
 
 
 def _screen_with_progress(
-    register: Path,
+    register: Path | str,
     out: Path | None,
     mapping: Path | None,
     sheet: str | None,
@@ -212,12 +212,13 @@ def _screen_with_progress(
     options: MapOptions | None = None,
     sheets: bool = False,
     history: Path | None = None,
+    table: str | None = None,
 ) -> JobResult:
     """Screen and write; a progress bar for registers large enough to wait for."""
     from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
 
     cfg = load_config(config)
-    big = register.exists() and register.stat().st_size > 2_000_000
+    big = table is not None or (Path(register).exists() and Path(register).stat().st_size > 2_000_000)
     with Progress(
         SpinnerColumn(),
         TextColumn("{task.description}"),
@@ -234,12 +235,14 @@ def _screen_with_progress(
             config=cfg,
             history=history,
             progress=lambda name: bar.update(task, description=name),
+            table=table,
         )
         if len(job.walls) == 0:
             _print_problems(job)
+            shown = register if table is None else job.info.input_file  # never a password
             if job.screening.prepared.n_read == 0:
-                raise ScreeningError(f"{register}: no wall rows below the header")
-            raise ScreeningError(f"{register}: no row could be screened")
+                raise ScreeningError(f"{shown}: no wall rows below the header")
+            raise ScreeningError(f"{shown}: no row could be screened")
         if out is not None:
             write_outputs(
                 job,
@@ -251,9 +254,49 @@ def _screen_with_progress(
     return job
 
 
+RegisterOrDbArg = Annotated[
+    str,
+    typer.Argument(
+        help="The register: .csv, .xlsx/.xls/.ods, .gpkg/.geojson/.shp, or postgresql://… with --table"
+    ),
+]
+TableOpt = Annotated[
+    str | None, typer.Option("--table", help="Table or view holding the register ([schema.]name)")
+]
+ToDbOpt = Annotated[
+    str | None,
+    typer.Option(
+        "--to-db", help="Also write walls, results and the run history to PostgreSQL (postgresql://…)"
+    ),
+]
+DbSchemaOpt = Annotated[str, typer.Option("--db-schema", help="Schema for --to-db")]
+
+
+def _register_source(register: str, table: str | None) -> Path | str:
+    """A file path, or a PostgreSQL DSN when the register is a table (credentials stay in it)."""
+    from screening.io.postgis import is_dsn
+
+    if is_dsn(register):
+        if table is None:
+            raise ScreeningError("a postgresql:// register needs --table NAME (the table or view of walls)")
+        return register
+    if table is not None:
+        raise ScreeningError("--table goes with a postgresql://… register, not with a file")
+    return Path(register)
+
+
+def _write_database(job: JobResult, dsn: str, schema: str) -> None:
+    from screening.io.postgis import masked
+    from screening.job import write_database
+
+    stored = write_database(job, dsn, schema)
+    note = "" if stored else " (this input and settings were already in its history: not recorded twice)"
+    console.print(f"  {'database':<12} {escape(masked(dsn))}, schema {escape(schema)}{note}")
+
+
 @app.command()
 def run(
-    register: RegisterArg,
+    register: RegisterOrDbArg,
     out: Annotated[Path, typer.Option("--out", "-o", help="Folder for the outputs")] = Path("wallscreen-out"),
     mapping: MappingOpt = None,
     sheet: SheetOpt = None,
@@ -269,17 +312,30 @@ def run(
         typer.Option("--history", help="Run history GeoPackage [default: OUT/history.gpkg]"),
     ] = None,
     no_history: Annotated[bool, typer.Option("--no-history", help="Keep no run history")] = False,
+    table: TableOpt = None,
+    to_db: ToDbOpt = None,
+    db_schema: DbSchemaOpt = "wallscreen",
 ) -> None:
     """Screen every wall in the drained, blocked and surveyed cases and write the outputs."""
     options = MapOptions(map_assets_url, map_assets_dir, map_tiles)
     hist = None if no_history else (history or out / "history.gpkg")
     try:
         options.check()
-        job = _screen_with_progress(register, out, mapping, sheet, config, options, sheets, hist)
+        source = _register_source(register, table)
+        if to_db is not None:
+            from screening.io.postgis import identifier
+
+            identifier(db_schema, "--db-schema")
+        job = _screen_with_progress(source, out, mapping, sheet, config, options, sheets, hist, table)
     except ScreeningError as exc:
         raise _fail(exc) from None
     _print_problems(job)
     _print_summary(job)
+    if to_db is not None:
+        try:
+            _write_database(job, to_db, db_schema)
+        except ScreeningError as exc:
+            raise _fail(exc) from None
     if job.n_rejected:
         raise typer.Exit(EXIT_SOME_REJECTED)
 

@@ -14,7 +14,7 @@ import pandas as pd
 
 from screening import __version__
 from screening.config import Config
-from screening.io import LoadedRegister, load_register
+from screening.io import LoadedRegister, load_register, load_table
 from screening.io.locate import locate
 from screening.io.writers import write_csv, write_text_atomic
 from screening.outputs import sheet_filename
@@ -113,15 +113,21 @@ def screen_file(
     config: Config | None = None,
     history: str | Path | None = None,
     progress: Progress | None = None,
+    table: str | None = None,
 ) -> JobResult:
     """Load, screen and locate a register file, without writing anything.
 
     With a ``history`` file, earlier surveys recorded there count towards each wall's lean rate.
+    With ``table``, ``register_path`` is a PostgreSQL DSN and the register that table or view.
     """
     from screening.history import lean_points
 
     config = config or Config()
-    loaded = load_register(register_path, mapping=mapping, sheet=sheet)
+    if table is not None:
+        loaded, input_name, input_digest = load_table(str(register_path), table, mapping=mapping)
+    else:
+        loaded = load_register(register_path, mapping=mapping, sheet=sheet)
+        input_name, input_digest = Path(register_path).name, sha256(register_path)
     run = evaluate(
         loaded.frame,
         config,
@@ -131,8 +137,8 @@ def screen_file(
         progress=progress,
     )
     info = RunInfo(
-        input_file=Path(register_path).name,
-        input_sha256=sha256(register_path),
+        input_file=input_name,
+        input_sha256=input_digest,
         tool_version=__version__,
         run_time=dt.datetime.now(dt.UTC).replace(microsecond=0).isoformat(),
         config=config,
@@ -226,7 +232,12 @@ def record_history(job: JobResult) -> Any:
     from screening.history import record_run
 
     assert job.history is not None
-    run = {
+    return record_run(job.history, run=run_record(job), walls=job.walls, geometry=job.geometry)
+
+
+def run_record(job: JobResult) -> dict[str, Any]:
+    """The row of the history's ``runs`` table for this run."""
+    return {
         "run_id": job.run_id,
         "run_time": job.info.run_time,
         "input_file": job.info.input_file,
@@ -238,7 +249,34 @@ def record_history(job: JobResult) -> Any:
         "n_rejected": job.n_rejected,
         "rejected_walls": json.dumps(sorted(_rejected_ids(job))),
     }
-    return record_run(job.history, run=run, walls=job.walls, geometry=job.geometry)
+
+
+def write_database(job: JobResult, dsn: str, schema: str) -> bool:
+    """Write walls, results per case and the run history to PostgreSQL, in one transaction.
+
+    Returns False when the same input with the same settings was already in the database's
+    history (the latest walls and results are replaced all the same).
+    """
+    from screening.history import INPUT_COLUMNS, KEPT_RESULTS, RUN_COLUMNS
+    from screening.io.postgis import write_run
+    from screening.outputs.geopackage import gis_columns
+
+    history = job.walls.reindex(columns=["wall_id", *INPUT_COLUMNS, *KEPT_RESULTS])
+    history.insert(0, "run_id", job.run_id)
+    walls = gis_columns(job.walls)
+    walls.insert(0, "run_id", job.run_id)
+    results = job.screening.results.reindex(columns=list(RESULT_COLUMNS))
+    results.insert(0, "run_id", job.run_id)
+    return write_run(
+        dsn,
+        schema,
+        run=run_record(job),
+        run_columns={c: "bigint" if t == "INTEGER" else "text" for c, t in RUN_COLUMNS.items()},
+        walls=walls,
+        results=results,
+        geometry=job.geometry,
+        history=history,
+    )
 
 
 def write_explanations(job: JobResult, wall_ids: list[str], out_dir: str | Path) -> dict[str, str]:
