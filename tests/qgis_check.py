@@ -106,17 +106,83 @@ def _sld_rules(source: str, style_name: str) -> dict:
     }
 
 
-def render(layers: list[QgsVectorLayer], png: Path, size: int) -> None:
-    settings = QgsMapSettings()
-    settings.setLayers(layers)
-    settings.setBackgroundColor(QColor(255, 255, 255))
-    settings.setOutputSize(QSize(size, size))
-    settings.setDestinationCrs(layers[0].crs())
+def layout_png(layers: list[QgsVectorLayer], png: Path, title: str) -> None:
+    """A print layout of QGIS's own: the map in Web Mercator, the legend of the styles, a title."""
+    from qgis.core import (  # type: ignore[import-not-found]
+        QgsCoordinateReferenceSystem,
+        QgsCoordinateTransform,
+        QgsLayoutExporter,
+        QgsLayoutItemLabel,
+        QgsLayoutItemLegend,
+        QgsLayoutItemPicture,
+        QgsLayoutPoint,
+        QgsLayoutSize,
+        QgsPrintLayout,
+        QgsProject,
+        QgsUnitTypes,
+    )
+    from qgis.PyQt.QtGui import QFont  # type: ignore[import-not-found]
+
+    project = QgsProject.instance()
+    project.addMapLayers(layers)
+    mercator = QgsCoordinateReferenceSystem("EPSG:3857")
+    project.setCrs(mercator)
+    layout = QgsPrintLayout(project)
+    layout.initializeDefaults()
+    page = layout.pageCollection().page(0)
+    page.setPageSize(QgsLayoutSize(250, 150, QgsUnitTypes.LayoutMillimeters))
+    mm = QgsUnitTypes.LayoutMillimeters
+    label = QgsLayoutItemLabel(layout)
+    label.setText(title)
+    label.setFont(QFont("DejaVu Sans", 13))
+    label.attemptMove(QgsLayoutPoint(6, 4, mm))
+    label.attemptResize(QgsLayoutSize(228, 9, mm))
+    layout.addLayoutItem(label)
+    # the map drawn by QGIS's map renderer (a layout map item draws nothing offscreen in 3.22),
+    # placed in the layout as a picture; the legend is the layout's own
     extent = QgsRectangle()
     for layer in layers:
         if layer.featureCount():
-            extent.combineExtentWith(layer.extent())
-    extent.scale(1.05)
+            to_map = QgsCoordinateTransform(layer.crs(), mercator, project)
+            extent.combineExtentWith(to_map.transformBoundingBox(layer.extent()))
+    extent.scale(1.08)
+    width = 1500
+    height = int(width * extent.height() / extent.width())
+    drawn = png.with_name(png.stem + "-map.png")
+    render(layers, drawn, width, height, mercator, extent, dpi=width / (150 / 25.4))  # 150 mm wide
+    page.setPageSize(QgsLayoutSize(250, 20 + 150 * height / width, mm))
+    picture = QgsLayoutItemPicture(layout)
+    picture.setPicturePath(str(drawn))
+    picture.attemptMove(QgsLayoutPoint(6, 14, mm))
+    picture.attemptResize(QgsLayoutSize(150, 150 * height / width, mm))
+    picture.setFrameEnabled(True)
+    layout.addLayoutItem(picture)
+    legend = QgsLayoutItemLegend(layout)
+    legend.setTitle("Priority band")
+    legend.setAutoUpdateModel(True)
+    legend.attemptMove(QgsLayoutPoint(162, 14, mm))
+    layout.addLayoutItem(legend)
+    settings = QgsLayoutExporter.ImageExportSettings()
+    settings.dpi = 110
+    QgsLayoutExporter(layout).exportToImage(str(png), settings)
+
+
+def render(
+    layers: list[QgsVectorLayer], png: Path, width: int, height: int, crs=None, extent=None, dpi=96.0
+) -> None:
+    """One PNG from QGIS's own map renderer, white background."""
+    settings = QgsMapSettings()
+    settings.setOutputDpi(dpi)
+    settings.setLayers(layers)
+    settings.setBackgroundColor(QColor(255, 255, 255))
+    settings.setOutputSize(QSize(width, height))
+    settings.setDestinationCrs(crs or layers[0].crs())
+    if extent is None:
+        extent = QgsRectangle()
+        for layer in layers:
+            if layer.featureCount():
+                extent.combineExtentWith(layer.extent())
+        extent.scale(1.05)
     settings.setExtent(extent)
     job = QgsMapRendererParallelJob(settings)
     job.start()
@@ -136,7 +202,10 @@ def main() -> None:
         layers[name] = layer
         report[name] = describe(layer)
     spatial = [layers["walls_points"], layers["walls_lines"]]  # points drawn over lines
-    render(spatial, png, size)
+    if len(sys.argv) > 4:  # a title: the README's picture, as a print layout with a legend
+        layout_png(spatial, png, sys.argv[4])
+    else:
+        render(spatial, png, size, size)
     print(json.dumps(report), flush=True)
     # QGIS 3.22 can crash while tearing down the application with layers alive in Python; the
     # report is out, so leave without the teardown
