@@ -401,8 +401,8 @@ def write_parquet(job: JobResult, out: Path) -> dict[str, Path]:
 
     results = job.screening.results.reindex(columns=list(RESULT_COLUMNS))
     return {
-        "walls_parquet": write_walls_parquet(job.walls, job.geometry, out / "walls.parquet"),
-        "results_parquet": write_results_parquet(results, out / "results.parquet"),
+        "geoparquet": write_walls_parquet(job.walls, job.geometry, out / "walls.parquet"),
+        "parquet": write_results_parquet(results, out / "results.parquet"),
     }
 
 
