@@ -2,7 +2,8 @@
 
 Usage: ``wallscreen demo --out maps && python docs/make_images.py maps``. Needs Debian's
 chromium (map screenshot, through the test harness that serves Leaflet from the npm
-registry) and LibreOffice with poppler-utils (workbook render).
+registry), LibreOffice with poppler-utils (workbook render) and Debian's python3-qgis (the
+GeoPackage as QGIS draws it).
 """
 
 from __future__ import annotations
@@ -92,10 +93,26 @@ def workbook_render(run: Path) -> None:
         image.crop((int(0.05 * w), int(0.07 * h), int(0.97 * w), int(0.30 * h))).save(OUT / "workbook.png")
 
 
+def qgis_render(run: Path) -> None:
+    """walls.gpkg as Debian's QGIS draws it with the style it opens with (tests/qgis_check.py)."""
+    import os
+
+    with tempfile.TemporaryDirectory() as tmp:
+        png = Path(tmp) / "qgis.png"
+        env = dict(os.environ, QT_QPA_PLATFORM="offscreen", XDG_RUNTIME_DIR=tmp)
+        subprocess.run(
+            ["/usr/bin/python3", str(ROOT / "tests" / "qgis_check.py"), str(run / "walls.gpkg"), str(png),
+             "600", "The sample's walls.gpkg in QGIS: the saved default style, by priority band"],
+            check=True, env=env, stdout=subprocess.DEVNULL,
+        )  # fmt: skip
+        shutil.copyfile(png, OUT / "qgis.png")
+
+
 if __name__ == "__main__":
     run = Path(sys.argv[1] if len(sys.argv) > 1 else "maps")
     OUT.mkdir(parents=True, exist_ok=True)
     map_screenshot(run)
     sheet_figure(run)
     workbook_render(run)
+    qgis_render(run)
     print(f"pictures written to {OUT}")

@@ -271,7 +271,7 @@ def print_changes(changes: pd.DataFrame, limit: int = 12, where: str = "changes.
 
 
 def _screen_with_progress(
-    register: Path,
+    register: Path | str,
     out: Path | None,
     mapping: Path | None,
     sheet: str | None,
@@ -282,12 +282,13 @@ def _screen_with_progress(
     crs: str | None = None,
     draws: tuple[int | None, int | None] = (None, None),
     client: object = None,
+    table: str | None = None,
 ) -> JobResult:
     """Screen and write; a progress bar for registers large enough to wait for (or on a cluster)."""
     from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
 
     cfg = _with_draws(load_config(config), *draws)
-    big = register.exists() and register.stat().st_size > 2_000_000
+    big = table is not None or (Path(register).exists() and Path(register).stat().st_size > 2_000_000)
     with Progress(
         SpinnerColumn(),
         TextColumn("{task.description}"),
@@ -306,12 +307,14 @@ def _screen_with_progress(
             progress=lambda name: bar.update(task, description=name),
             crs=crs,
             client=client,
+            table=table,
         )
         if len(job.walls) == 0:
             _print_problems(job)
+            shown = register if table is None else job.info.input_file  # never a password
             if job.screening.prepared.n_read == 0:
-                raise ScreeningError(f"{register}: no wall rows below the header")
-            raise ScreeningError(f"{register}: no row could be screened")
+                raise ScreeningError(f"{shown}: no wall rows below the header")
+            raise ScreeningError(f"{shown}: no row could be screened")
         if out is not None:
             write_outputs(
                 job,
@@ -324,18 +327,59 @@ def _screen_with_progress(
 
 
 def _refuse_unsafe_outputs(
-    register: Path, out: Path, history: Path | None, mapping: Path | None, config: Path | None
+    register: Path | str, out: Path, history: Path | None, mapping: Path | None, config: Path | None
 ) -> None:
     """Before any work: --out is a folder, and no output (nor the history) replaces an input."""
     from screening.io.outfolder import refuse_file_as_folder, refuse_overwriting_input, run_targets
 
     refuse_file_as_folder(out)
-    refuse_overwriting_input([register, mapping, config], run_targets(out, history))
+    files = [register] if isinstance(register, Path) else []  # a DSN is no file
+    refuse_overwriting_input([*files, mapping, config], run_targets(out, history))
+
+
+RegisterOrDbArg = Annotated[
+    str,
+    typer.Argument(
+        help="The register: .csv, .xlsx/.xls/.ods, .gpkg/.geojson/.shp, or postgresql://… with --table"
+    ),
+]
+TableOpt = Annotated[
+    str | None, typer.Option("--table", help="Table or view holding the register ([schema.]name)")
+]
+ToDbOpt = Annotated[
+    str | None,
+    typer.Option(
+        "--to-db", help="Also write walls, results and the run history to PostgreSQL (postgresql://…)"
+    ),
+]
+DbSchemaOpt = Annotated[str, typer.Option("--db-schema", help="Schema for --to-db")]
+
+
+def _register_source(register: str, table: str | None) -> Path | str:
+    """A file path, or a PostgreSQL DSN when the register is a table (credentials stay in it)."""
+    from screening.io.postgis import is_dsn
+
+    if is_dsn(register):
+        if table is None:
+            raise ScreeningError("a postgresql:// register needs --table NAME (the table or view of walls)")
+        return register
+    if table is not None:
+        raise ScreeningError("--table goes with a postgresql://… register, not with a file")
+    return Path(register)
+
+
+def _write_database(job: JobResult, dsn: str, schema: str) -> None:
+    from screening.io.postgis import masked
+    from screening.job import write_database
+
+    stored = write_database(job, dsn, schema)
+    note = "" if stored else " (this input and settings were already in its history: not recorded twice)"
+    console.print(f"  {'database':<12} {escape(masked(dsn))}, schema {escape(schema)}{note}")
 
 
 @app.command()
 def run(
-    register: RegisterArg,
+    register: RegisterOrDbArg,
     out: Annotated[Path, typer.Option("--out", "-o", help="Folder for the outputs")] = Path("wallscreen-out"),
     mapping: MappingOpt = None,
     sheet: SheetOpt = None,
@@ -369,6 +413,9 @@ def run(
             "--dask", metavar="ADDRESS", help="Screen the chunks on a Dask scheduler, tcp://host:8786"
         ),
     ] = None,
+    table: TableOpt = None,
+    to_db: ToDbOpt = None,
+    db_schema: DbSchemaOpt = "wallscreen",
 ) -> None:
     """Screen every wall in the drained, blocked and surveyed cases and write the outputs."""
     from screening.distributed import check_options, dask_client
@@ -377,11 +424,16 @@ def run(
     hist = None if no_history else (history or out / "history.gpkg")
     try:
         options.check()
-        _refuse_unsafe_outputs(register, out, hist, mapping, config)
+        source = _register_source(register, table)
+        if to_db is not None:
+            from screening.io.postgis import identifier
+
+            identifier(db_schema, "--db-schema")
+        _refuse_unsafe_outputs(source, out, hist, mapping, config)
         check_options(workers, dask_address)
         with dask_client(workers, dask_address) as client:
             job = _screen_with_progress(
-                register,
+                source,
                 out,
                 mapping,
                 sheet,
@@ -392,6 +444,7 @@ def run(
                 crs,
                 draws=(samples, seed),
                 client=client,
+                table=table,
             )
     except ScreeningError as exc:
         raise _fail(exc) from None
@@ -399,6 +452,11 @@ def run(
         raise _write_failed(exc, out) from None
     _print_problems(job)
     _print_summary(job)
+    if to_db is not None:
+        try:
+            _write_database(job, to_db, db_schema)
+        except ScreeningError as exc:
+            raise _fail(exc) from None
     if job.n_rejected:
         raise typer.Exit(EXIT_SOME_REJECTED)
 

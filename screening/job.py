@@ -15,7 +15,7 @@ import pandas as pd
 
 from screening import __version__
 from screening.config import Config
-from screening.io import LoadedRegister, load_register
+from screening.io import LoadedRegister, load_register, load_table
 from screening.io.locate import locate
 from screening.io.writers import write_csv, write_text_atomic
 from screening.io.xlsxcheck import SheetLimits
@@ -143,19 +143,25 @@ def screen_file(
     progress: Progress | None = None,
     crs: str | None = None,
     client: Any = None,
+    table: str | None = None,
 ) -> JobResult:
     """Load, screen and locate a register file, without writing anything.
 
     With a ``history`` file, earlier surveys recorded there count towards each wall's lean rate;
-    with a ``distributed.Client``, the chunks are screened on its cluster.
+    with a ``distributed.Client``, the chunks are screened on its cluster. With ``table``,
+    ``register_path`` is a PostgreSQL DSN and the register that table or view.
     """
     from screening.history import lean_points
 
     config = config or Config()
-    limits = SheetLimits(config.max_cells, config.max_sheet_mb)
-    digest = input_digest(register_path)
-    loaded = load_register(register_path, mapping=mapping, sheet=sheet, limits=limits, crs=crs)
-    refuse_changed_input(register_path, digest)
+    if table is not None:
+        loaded, input_name, digest = load_table(str(register_path), table, mapping=mapping)
+    else:
+        limits = SheetLimits(config.max_cells, config.max_sheet_mb)
+        digest = input_digest(register_path)
+        loaded = load_register(register_path, mapping=mapping, sheet=sheet, limits=limits, crs=crs)
+        refuse_changed_input(register_path, digest)
+        input_name = Path(register_path).name
     run = evaluate(
         loaded.frame,
         config,
@@ -166,7 +172,7 @@ def screen_file(
         client=client,
     )
     info = RunInfo(
-        input_file=Path(register_path).name,
+        input_file=input_name,
         input_sha256=digest,
         tool_version=__version__,
         run_time=dt.datetime.now(dt.UTC).replace(microsecond=0).isoformat(),
@@ -293,7 +299,12 @@ def record_history(job: JobResult) -> Any:
     from screening.history import record_run
 
     assert job.history is not None
-    run = {
+    return record_run(job.history, run=run_record(job), walls=job.walls, geometry=job.geometry)
+
+
+def run_record(job: JobResult) -> dict[str, Any]:
+    """The row of the history's ``runs`` table for this run."""
+    return {
         "run_id": job.run_id,
         "run_time": job.info.run_time,
         "input_file": job.info.input_file,
@@ -305,7 +316,34 @@ def record_history(job: JobResult) -> Any:
         "n_rejected": job.n_rejected,
         "rejected_walls": json.dumps(sorted(_rejected_ids(job))),
     }
-    return record_run(job.history, run=run, walls=job.walls, geometry=job.geometry)
+
+
+def write_database(job: JobResult, dsn: str, schema: str) -> bool:
+    """Write walls, results per case and the run history to PostgreSQL, in one transaction.
+
+    Returns False when the same input with the same settings was already in the database's
+    history (the latest walls and results are replaced all the same).
+    """
+    from screening.history import INPUT_COLUMNS, KEPT_RESULTS, RUN_COLUMNS
+    from screening.io.postgis import write_run
+    from screening.outputs.geopackage import gis_columns
+
+    history = job.walls.reindex(columns=["wall_id", *INPUT_COLUMNS, *KEPT_RESULTS])
+    history.insert(0, "run_id", job.run_id)
+    walls = gis_columns(job.walls)
+    walls.insert(0, "run_id", job.run_id)
+    results = job.screening.results.reindex(columns=list(RESULT_COLUMNS))
+    results.insert(0, "run_id", job.run_id)
+    return write_run(
+        dsn,
+        schema,
+        run=run_record(job),
+        run_columns={c: "bigint" if t == "INTEGER" else "text" for c, t in RUN_COLUMNS.items()},
+        walls=walls,
+        results=results,
+        geometry=job.geometry,
+        history=history,
+    )
 
 
 def write_explanations(job: JobResult, wall_ids: list[str], out_dir: str | Path) -> dict[str, str]:
@@ -425,6 +463,8 @@ def write_outputs(
     )
     step("GeoPackage")
     outputs["geopackage"] = write_geopackage(job.walls, job.geometry, out / "walls.gpkg")
+    step("Parquet")
+    outputs.update(write_parquet(job, out))
     step("map")
     outputs["map"] = render_map(job, out, map_options)
     if job.history is not None:
@@ -438,24 +478,33 @@ def write_outputs(
     return outputs
 
 
+def write_parquet(job: JobResult, out: Path) -> dict[str, Path]:
+    """``walls.parquet`` (GeoParquet) and ``results.parquet`` beside the CSVs."""
+    from screening.outputs.parquet import write_results_parquet, write_walls_parquet
+
+    results = job.screening.results.reindex(columns=list(RESULT_COLUMNS))
+    return {
+        "geoparquet": write_walls_parquet(job.walls, job.geometry, out / "walls.parquet"),
+        "parquet": write_results_parquet(results, out / "results.parquet"),
+    }
+
+
 def rerender_map(results_dir: str | Path, options: MapOptions | None = None) -> Path:
     """Re-render ``map.html`` from the outputs of an earlier run (walls.gpkg, results.csv, run.json)."""
-    import geopandas as gpd
-
     from screening.errors import RegisterError
     from screening.io.readers import read_result_csv
+    from screening.outputs.geopackage import read_geopackage
 
     folder = Path(results_dir)
     needed = [folder / "walls.gpkg", folder / "results.csv", folder / "run.json"]
     missing = [p.name for p in needed if not p.exists()]
     if missing:
         raise RegisterError(f"{folder}: not a wallscreen output folder (missing {', '.join(missing)})")
-    gdf = gpd.read_file(folder / "walls.gpkg", layer="walls")
+    walls, geometry = read_geopackage(folder / "walls.gpkg")
     results = read_result_csv(folder / "results.csv")
     info = json.loads((folder / "run.json").read_text(encoding="utf-8"))
-    walls = pd.DataFrame(gdf.drop(columns="geometry"))
     walls["located"] = walls["located"].astype(bool)
-    geometry = np.array([g if g is not None and not g.is_empty else None for g in gdf.geometry], dtype=object)
+    geometry = np.array([g if g is not None and not g.is_empty else None for g in geometry], dtype=object)
     sheets = {
         str(w): f"sheets/{sheet_filename(str(w))}"
         for w in walls["wall_id"]

@@ -6,13 +6,13 @@ import json
 import re
 from pathlib import Path
 
-import geopandas as gpd
 import openpyxl
 import pandas as pd
 from typer.testing import CliRunner
 
 from screening.cli import app
 from screening.outputs import sheet_filename
+from screening.outputs.geopackage import read_geopackage
 
 runner = CliRunner()
 
@@ -50,7 +50,7 @@ def test_demo_writes_every_output_consistently(tmp_path: Path) -> None:
     assert on_map == {r[1] for r in ranked if r[located_col]}
     assert in_book == set(walls.wall_id)
     assert len(in_book - on_map) == 1  # the one wall without a location
-    gpkg = gpd.read_file(out / "walls.gpkg")
+    gpkg, _ = read_geopackage(out / "walls.gpkg")  # lines, points and the unlocated walls
     assert set(gpkg.wall_id) == in_book
 
     # the flagged walls have sheets, and only they

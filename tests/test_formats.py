@@ -53,8 +53,8 @@ def test_csv_owner_xlsx_and_geopackage_give_identical_results(tmp_path: Path) ->
             walls["xlsx"].drop(columns=["located"]), walls[n].drop(columns=["located"])
         )
     # the same types reach the GeoPackage output whatever the source
-    a = gpd.read_file(tmp_path / "xlsx" / "walls.gpkg")
-    b = gpd.read_file(tmp_path / "gpkg" / "walls.gpkg")
+    a = gpd.read_file(tmp_path / "xlsx" / "walls.gpkg", layer="walls_points")
+    b = gpd.read_file(tmp_path / "gpkg" / "walls.gpkg", layer="walls_points")
     assert dict(a.dtypes.astype(str)) == dict(b.dtypes.astype(str))
 
 

@@ -51,4 +51,17 @@ def load_register(
     return LoadedRegister(frame, labels, shown, raw, colmap)
 
 
-__all__ = ["LoadedRegister", "load_register", "read_register"]
+def load_table(dsn: str, table: str, *, mapping: str | Path | None = None) -> tuple[LoadedRegister, str, str]:
+    """Read a register table or view from PostgreSQL and map it (see :mod:`screening.io.postgis`).
+
+    Returns the register, a name for the source (no credentials) and the SHA-256 of its content.
+    """
+    from screening.io.postgis import read_table
+
+    colmap = load_mapping(mapping)
+    raw, name, digest = read_table(dsn, table)
+    frame, labels, shown = to_canonical(raw, colmap)
+    return LoadedRegister(frame, labels, shown, raw, colmap), name, digest
+
+
+__all__ = ["LoadedRegister", "load_register", "load_table", "read_register"]
