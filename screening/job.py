@@ -346,13 +346,21 @@ def write_database(job: JobResult, dsn: str, schema: str) -> bool:
     )
 
 
-def write_explanations(job: JobResult, wall_ids: list[str], out_dir: str | Path) -> dict[str, str]:
+def write_explanations(
+    job: JobResult, wall_ids: list[str], out_dir: str | Path, progress: Progress | None = None
+) -> dict[str, str]:
     """Calculation sheets for the given walls (see :mod:`screening.outputs.sheets`)."""
     from screening.outputs.sheets import write_sheets
 
     prepared = job.screening.prepared
     return write_sheets(
-        prepared.walls, prepared.assumptions, wall_ids, out_dir, job.info.config, provenance(job)
+        prepared.walls,
+        prepared.assumptions,
+        wall_ids,
+        out_dir,
+        job.info.config,
+        provenance(job),
+        progress=progress,
     )
 
 
@@ -445,7 +453,7 @@ def write_outputs(
             outputs["changes"] = write_csv(job.changes, out / "changes.csv")
     if sheet_ids:
         step(f"{len(sheet_ids)} calculation sheets")
-        job.sheets.update(write_explanations(job, sheet_ids, out))
+        job.sheets.update(write_explanations(job, sheet_ids, out, progress=step))
         outputs["sheets"] = out / "sheets"
     step("workbook")
     outputs["workbook"] = write_workbook(

@@ -184,3 +184,20 @@ def test_the_page_content_is_plain_data(tmp_path: Path) -> None:
     assert len(found) > 150 and context["figure"].startswith("data:image/png;base64,")
     assert context["cases"][1]["crack"] is not None  # the crack plane is checked when blocked
     assert not [s for s in found if "<" in s or ">" in s]
+
+
+def test_sheets_report_a_count_as_they_are_written(tmp_path: Path) -> None:
+    # the progress display said nothing for the whole of the sheets step: it must count them
+    from screening import evaluate
+    from screening.config import Config
+    from screening.outputs.sheets import write_sheets
+
+    rows = [worked_wall(f"W{k}", 1.5 + 0.1 * k, drainage="blocked") for k in range(9)]
+    run = evaluate(pd.DataFrame(rows), Config(samples=0))
+    heard: list[str] = []
+    ids = [r["wall_id"] for r in rows]
+    written = write_sheets(
+        run.prepared.walls, run.prepared.assumptions, ids, tmp_path, run.config, [], False, heard.append
+    )
+    assert sorted(written) == sorted(ids)
+    assert heard == [f"calculation sheet {k} of 9" for k in range(1, 10)]

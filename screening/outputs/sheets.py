@@ -18,7 +18,7 @@ import io
 import math
 import multiprocessing as mp
 import os
-from collections.abc import Iterable
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 from importlib import resources
 from pathlib import Path
@@ -700,8 +700,11 @@ def write_sheets(
     config: Config,
     provenance: list[tuple[str, Any]],
     with_figure: bool = True,
+    progress: Callable[[str], None] | None = None,
 ) -> dict[str, str]:
     """Write one sheet per wall into ``out_dir/sheets``; return wall id -> relative path.
+
+    ``progress`` hears "calculation sheet k of n" as each sheet is written.
 
     ``walls`` are the prepared (accepted, defaults filled) walls; the engine is run again
     on just these walls with ``details=True``, which gives the very numbers of the bulk run
@@ -735,15 +738,27 @@ def write_sheets(
             # drawing the figures dominates: share the work among the cores (forked
             # workers inherit the job, nothing is pickled but the wall positions)
             with mp.get_context("fork").Pool(min(os.cpu_count() or 1, 4)) as pool:
-                pairs = pool.map(_write_one, range(n), chunksize=4)
+                pairs = _counted(pool.imap(_write_one, range(n), chunksize=4), n, progress)
         else:
-            pairs = [_write_one(pos) for pos in range(n)]
+            pairs = _counted(map(_write_one, range(n)), n, progress)
     finally:
         _JOB = None
     return dict(pairs)
 
 
 _JOB: Any = None
+
+
+def _counted(
+    pairs: Iterable[tuple[str, str]], n: int, progress: Callable[[str], None] | None
+) -> list[tuple[str, str]]:
+    """The sheets' (wall id, path) pairs as they finish, saying "calculation sheet k of n"."""
+    done = []
+    for k, pair in enumerate(pairs, start=1):
+        done.append(pair)
+        if progress is not None:
+            progress(f"calculation sheet {k} of {n}")
+    return done
 
 
 def _critical_rows(
