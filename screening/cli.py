@@ -77,7 +77,12 @@ RegisterArg = Annotated[Path, typer.Argument(help="The register: .csv, .xlsx/.xl
 MappingOpt = Annotated[
     Path | None, typer.Option("--mapping", "-m", help="TOML file mapping your headers, units and codes")
 ]
-SheetOpt = Annotated[str | None, typer.Option(help="Sheet name or 0-based index (spreadsheets)")]
+SheetOpt = Annotated[
+    str | None,
+    typer.Option(
+        "--sheet", "--layer", help="Sheet name or 0-based index (spreadsheets), or layer name (GeoPackage)"
+    ),
+]
 CrsOpt = Annotated[
     str | None,
     typer.Option("--crs", help="CRS of easting/northing and of a GIS layer without one, e.g. EPSG:27700"),

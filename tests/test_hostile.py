@@ -532,3 +532,50 @@ def test_a_stray_cp1252_byte_and_utf16_text_are_read_and_named(name: str, note: 
     assert names[1] in ("Café Bank", "Mill Bank")
     assert any(note in n for n in job.info.notes)
     assert digest(register) == before
+
+
+# --- GIS files: several layers, a shapefile without its .dbf, field names cut to 10 characters
+def _gis_walls(n: int = 2):
+    import geopandas as gpd
+    from shapely.geometry import Point
+
+    from tests.conftest import worked_wall
+
+    rows = [worked_wall(f"G{k}", 2.0) for k in range(n)]
+    frame = pd.DataFrame(rows).drop(columns=["lat", "lon"], errors="ignore")
+    return gpd.GeoDataFrame(frame, geometry=[Point(-1.9, 53.7 + k / 1000) for k in range(n)], crs="EPSG:4326")
+
+
+def test_a_geopackage_of_several_layers_needs_the_layer_named(tmp_path: Path) -> None:
+    path = tmp_path / "two.gpkg"
+    other = _gis_walls(1).assign(wall_id="NOT-A-WALL")
+    other.to_file(path, layer="drains", engine="pyogrio")
+    _gis_walls(3).to_file(path, layer="walls_2026", engine="pyogrio")
+    before = hashlib.sha256(path.read_bytes()).hexdigest()
+    result = runner.invoke(app, ["check", str(path)])
+    assert result.exit_code == 2, result.output
+    assert "2 layers (drains, walls_2026)" in result.output and "--layer" in result.output
+    result = runner.invoke(app, ["check", str(path), "--layer", "walls_2026"])
+    assert result.exit_code == 0, result.output
+    assert "3 of 3 rows can be screened" in result.output
+    result = runner.invoke(app, ["check", str(path), "--layer", "wals"])
+    assert result.exit_code == 2 and "no layer 'wals'" in result.output
+    assert hashlib.sha256(path.read_bytes()).hexdigest() == before
+
+
+@pytest.mark.filterwarnings("ignore::pytest.PytestUnraisableExceptionWarning")  # GDAL cuts the names
+def test_a_shapefile_without_its_dbf_says_so(tmp_path: Path) -> None:
+    path = tmp_path / "walls.shp"
+    _gis_walls(2).to_file(path, engine="pyogrio")
+    (tmp_path / "walls.dbf").unlink()
+    result = runner.invoke(app, ["check", str(path)])
+    assert result.exit_code == 2, result.output
+    assert "walls.dbf is missing" in result.output
+
+
+def test_field_names_cut_to_ten_characters_get_the_full_name_suggested() -> None:
+    # a shapefile (dBase) keeps 10 characters of a field name: retained_height_m becomes retained_h
+    from screening.io.mapping import _suggest
+
+    assert "retained_height_m" in _suggest("retained_h", ["retained_height_m", "height_m", "base_width_m"])
+    assert "retained_h" in _suggest("retained_height_m", ["retained_h", "height_m"])

@@ -163,6 +163,15 @@ def _units_for(column: str) -> tuple[str, ...]:
 
 def _suggest(name: str, options: tuple[str, ...] | list[str]) -> str:
     close = difflib.get_close_matches(name.lower(), [o.lower() for o in options], n=1, cutoff=0.6)
+    # a shapefile cuts field names to 10 characters: a cut name is a prefix of the full one
+    low = name.lower()
+    cut = [
+        o.lower()
+        for o in options
+        if (len(low) == 10 and len(o) > 10 and o.lower().startswith(low))
+        or (len(o) == 10 and len(low) > 10 and low.startswith(o.lower()))
+    ]
+    close = cut[:1] if len(cut) == 1 else close
     if not close:
         return ""
     original = next(o for o in options if o.lower() == close[0])

@@ -90,7 +90,7 @@ def read_register(
     if suffix in SPREADSHEETS:
         return _read_spreadsheet(path, sheet, known, limits or SheetLimits())
     if suffix in GIS:
-        return _read_gis(path, crs)
+        return _read_gis(path, crs, None if sheet is None else str(sheet))
     raise RegisterError(
         f"{path}: unsupported file type {suffix or '(none)'}; expected one of {', '.join(SUFFIXES)}"
     )
@@ -376,11 +376,40 @@ def _put_error_cells(grid: pd.DataFrame, cells: list[tuple[int, int, str]], top:
             grid.iat[r, c] = text
 
 
-def _read_gis(path: Path, given_crs: str | None = None) -> RawRegister:
+def _gis_layer(path: Path, layer: str | None) -> str | None:
+    """The layer to read: the one named, else the only one; several and none named is an error,
+    as is a shapefile without its .dbf (the attribute table)."""
+    import pyogrio
+
+    if path.suffix.lower() == ".shp":
+        siblings = {p.name.lower() for p in path.parent.iterdir()}
+        if f"{path.stem.lower()}.dbf" not in siblings:
+            raise RegisterError(
+                f"{path}: the shapefile's attribute table {path.stem}.dbf is missing beside it "
+                "(a shapefile is several files: copy the .dbf, .shx and .prj too)"
+            )
+        return None
+    try:
+        names = [str(n) for n in pyogrio.list_layers(path)[:, 0]]
+    except Exception as exc:  # pyogrio raises DataSourceError and friends
+        raise RegisterError(f"{path}: not a readable GIS layer ({exc})") from exc
+    if layer is not None:
+        if layer not in names:
+            raise RegisterError(f"{path}: no layer {layer!r}; its layers are {', '.join(names)}")
+        return layer
+    if len(names) > 1:
+        raise RegisterError(
+            f"{path}: holds {len(names)} layers ({', '.join(names)}); name the walls with --layer NAME"
+        )
+    return None
+
+
+def _read_gis(path: Path, given_crs: str | None = None, layer: str | None = None) -> RawRegister:
     import geopandas as gpd
 
+    chosen = _gis_layer(path, layer)
     try:
-        gdf = gpd.read_file(path, engine="pyogrio")
+        gdf = gpd.read_file(path, engine="pyogrio", layer=chosen)
     except Exception as exc:  # pyogrio raises DataSourceError and friends
         raise RegisterError(f"{path}: not a readable GIS layer ({exc})") from exc
     if gdf.crs is None:
