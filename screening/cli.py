@@ -382,6 +382,21 @@ def _write_database(job: JobResult, dsn: str, schema: str) -> None:
     console.print(f"  {'database':<12} {escape(masked(dsn))}, schema {escape(schema)}{note}")
 
 
+SamplesOpt = Annotated[
+    int | None,
+    typer.Option("--samples", help="Draws per wall for the probabilities (0 = off) [default: 2000]"),
+]
+SeedOpt = Annotated[int | None, typer.Option("--seed", help="Seed of the draws (same seed, same figures)")]
+WorkersOpt = Annotated[
+    int | None,
+    typer.Option("--workers", help="Screen the chunks on a local Dask cluster of N worker processes"),
+]
+DaskOpt = Annotated[
+    str | None,
+    typer.Option("--dask", metavar="ADDRESS", help="Screen the chunks on a Dask scheduler, tcp://host:8786"),
+]
+
+
 @app.command()
 def run(
     register: RegisterOrDbArg,
@@ -401,23 +416,10 @@ def run(
     ] = None,
     no_history: Annotated[bool, typer.Option("--no-history", help="Keep no run history")] = False,
     crs: CrsOpt = None,
-    samples: Annotated[
-        int | None,
-        typer.Option("--samples", help="Draws per wall for the probabilities (0 = off) [default: 2000]"),
-    ] = None,
-    seed: Annotated[
-        int | None, typer.Option("--seed", help="Seed of the draws (same seed, same figures)")
-    ] = None,
-    workers: Annotated[
-        int | None,
-        typer.Option("--workers", help="Screen the chunks on a local Dask cluster of N worker processes"),
-    ] = None,
-    dask_address: Annotated[
-        str | None,
-        typer.Option(
-            "--dask", metavar="ADDRESS", help="Screen the chunks on a Dask scheduler, tcp://host:8786"
-        ),
-    ] = None,
+    samples: SamplesOpt = None,
+    seed: SeedOpt = None,
+    workers: WorkersOpt = None,
+    dask_address: DaskOpt = None,
     table: TableOpt = None,
     to_db: ToDbOpt = None,
     db_schema: DbSchemaOpt = "wallscreen",

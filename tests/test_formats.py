@@ -69,7 +69,7 @@ def test_template_has_headers_notes_lists_and_a_guide(tmp_path: Path) -> None:
     assert headers[:4] == ["wall_id", "name", "lat", "lon"] and "surcharge_kpa" in headers
     assert "kPa" in walls.cell(1, headers.index("surcharge_kpa") + 1).comment.text
     lists = [dv for dv in walls.data_validations.dataValidation if dv.type == "list"]
-    assert len(lists) == 4  # material, foundation, drainage, consequence
+    assert len(lists) == 5  # material, foundation, drainage, consequence, dimensions_source
     guide = {r[0]: r for r in book["Guide"].iter_rows(min_row=2, values_only=True) if r[0]}
     assert guide["height_m"][2] == "yes" and "working" in guide["drainage"][1]
     # filled in by an owner, it screens with no mapping file

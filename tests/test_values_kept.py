@@ -13,6 +13,8 @@ import pytest
 
 from tests.reference.make_reference import HERE, random_job, sample_job, tables
 
+CHANGED_ON_PURPOSE = ("reason",)
+
 
 def _reference(name: str, table: str) -> pd.DataFrame:
     with gzip.open(HERE / f"{name}_{table}.csv.gz", "rt", encoding="utf-8") as fh:
@@ -24,8 +26,15 @@ def _numbers(values: pd.Series) -> np.ndarray:
 
 
 def assert_same(old: pd.DataFrame, new: pd.DataFrame, what: str) -> None:
-    """Same columns, rows and text; numbers within 6 significant figures (1e-5 relative)."""
-    assert list(new.columns) == list(old.columns), what
+    """Same columns, rows and text; numbers within 6 significant figures (1e-5 relative).
+
+    Columns added since the references were written (the probabilities, the data flags) are
+    not compared; the reason line's wording was changed on purpose since (issue #16: data
+    warnings and missing drainage said in it), so it is left out too."""
+    missing = [c for c in old.columns if c not in new.columns]
+    assert not missing, f"{what}: columns gone: {missing}"
+    kept = [c for c in old.columns if c not in CHANGED_ON_PURPOSE]
+    old, new = old[kept], new[kept]
     assert len(new) == len(old), what
     for col in old.columns:
         # a date reads the same with or without its midnight time

@@ -161,14 +161,15 @@ def _near_toe_wall() -> dict:
 
 
 def test_a_resultant_at_the_toe_is_said_in_words_not_as_a_pressure(tmp_path: Path) -> None:
-    folder, _ = _run(tmp_path, [_near_toe_wall()], "--sheets")
+    # samples off: with the probabilities on, their clause takes the place of the checks' words
+    folder, _ = _run(tmp_path, [_near_toe_wall()], "--sheets", "--samples", "0")
     results = pd.read_csv(folder / "results.csv")
     row = results[results["case"] == "surveyed"].iloc[0]
     assert 0 < row["resultant_from_toe_m"] < 0.02
     # the number stays in results.csv: q_max = 2V/(3 x_R) (method.md §3), huge but correct
     assert row["toe_pressure_kpa"] == pytest.approx(
-        2 * row["vertical_kn_m"] / (3 * row["resultant_from_toe_m"])
-    )
+        2 * row["vertical_kn_m"] / (3 * row["resultant_from_toe_m"]), rel=1e-4
+    )  # results.csv holds 6 significant figures of each
     assert row["toe_pressure_kpa"] > 1000
     walls = pd.read_csv(folder / "walls.csv")
     reason = walls["reason"].iloc[0]
@@ -191,7 +192,7 @@ def test_a_resultant_at_the_toe_is_said_in_words_not_as_a_pressure(tmp_path: Pat
 def test_the_toe_threshold_is_a_setting(tmp_path: Path) -> None:
     cfg = tmp_path / "config.toml"
     cfg.write_text("resultant_near_toe_m = 0.005\n", encoding="utf-8")
-    folder, _ = _run(tmp_path, [_near_toe_wall()], "--config", str(cfg))
+    folder, _ = _run(tmp_path, [_near_toe_wall()], "--config", str(cfg), "--samples", "0")
     reason = pd.read_csv(folder / "walls.csv")["reason"].iloc[0]
     assert "mm of the toe" not in reason and "toe pressure exceeds the allowable" in reason
 
@@ -261,7 +262,9 @@ def test_the_critical_figures_joint_and_annex_d_reach_the_workbook(tmp_path: Pat
         ("critical_lean_deg", "Critical lean"),
         ("years_to_critical_lean", "Years to critical lean"),
     ):
-        assert ranked.at["OLD", _header(ranked, header)] == pytest.approx(walls.at["OLD", column]), column
+        assert ranked.at["OLD", _header(ranked, header)] == pytest.approx(
+            walls.at["OLD", column], rel=1e-5
+        ), column
     assert "a projection, not a prediction" in _header(ranked, "Years to critical lean")
     method = " ".join(
         str(c) for r in _sheet_rows(folder / "report.xlsx", "Method and cautions") for c in r if c

@@ -47,6 +47,15 @@ def random_register(n: int = 10_000, seed: int = 18) -> pd.DataFrame:
     return frame
 
 
+def _before():  # type: ignore[no-untyped-def]
+    from screening.config import Config
+
+    return Config(samples=0)  # the references predate the probabilities (issue #14): off
+
+
+BEFORE = _before()
+
+
 def sample_job():  # type: ignore[no-untyped-def]
     """The 2026 sample survey screened with the 2025 survey in a fresh history (as the demo)."""
     from screening.demo import sample_paths
@@ -55,9 +64,9 @@ def sample_job():  # type: ignore[no-untyped-def]
     with tempfile.TemporaryDirectory() as tmp:
         history = Path(tmp) / "history.gpkg"
         first, mapping = sample_paths(2025)
-        record_history(screen_file(first, mapping=mapping, history=history))
+        record_history(screen_file(first, mapping=mapping, history=history, config=BEFORE))
         register, mapping = sample_paths(2026)
-        return screen_file(register, mapping=mapping, history=history)
+        return screen_file(register, mapping=mapping, history=history, config=BEFORE)
 
 
 def random_job():  # type: ignore[no-untyped-def]
@@ -66,7 +75,7 @@ def random_job():  # type: ignore[no-untyped-def]
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "random.csv"
         random_register().to_csv(path, index=False)
-        return screen_file(path)
+        return screen_file(path, config=BEFORE)
 
 
 def rounded(frame: pd.DataFrame) -> pd.DataFrame:
