@@ -346,6 +346,13 @@ COMPARED_RESULTS = (
 )
 
 
+def _change_text(col: str, value: object, as_number: bool) -> str:
+    """A value of a changed input as the user wrote it (numbers to the input's precision)."""
+    if pd.isna(value):  # type: ignore[call-overload]
+        return "blank"
+    return _input_text(col, float(value)) if as_number else str(value)  # type: ignore[arg-type]
+
+
 def compare(before: pd.DataFrame, after: pd.DataFrame, rejected: Sequence[str] = ()) -> pd.DataFrame:
     """Per wall: added, removed or changed; which inputs changed (from → to); how results moved.
 
@@ -372,12 +379,14 @@ def compare(before: pd.DataFrame, after: pd.DataFrame, rejected: Sequence[str] =
         numeric = pd.api.types.is_numeric_dtype(x) or pd.api.types.is_numeric_dtype(y)
         if numeric or xn.notna().any() or yn.notna().any():
             differ = ~np.isclose(xn.astype(float), yn.astype(float), rtol=0, atol=1e-6, equal_nan=True)
-            fmt = lambda v, c=col: "blank" if pd.isna(v) else _input_text(c, float(v))  # noqa: E731
         else:
             differ = (x.fillna("").astype(str) != y.fillna("").astype(str)).to_numpy()
-            fmt = lambda v: "blank" if pd.isna(v) else str(v)  # noqa: E731
         hit = both[differ]
-        text = [f"{col}: {fmt(a.at[w, col])} → {fmt(b.at[w, col])}" for w in hit]
+        as_number = bool(numeric or xn.notna().any() or yn.notna().any())
+        text = []
+        for w in hit:
+            before, after = (_change_text(col, t.at[w, col], as_number) for t in (a, b))
+            text.append(f"{col}: {before} → {after}")
         changes.loc[hit] = [f"{c}; {t}" if c else t for c, t in zip(changes.loc[hit], text, strict=True)]
     out["inputs_changed"] = changes
     for col in COMPARED_RESULTS:
