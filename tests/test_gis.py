@@ -131,7 +131,9 @@ def test_parquet_reads_back_with_pyarrow_and_geopandas(sample_run) -> None:
     results = pq.read_table(out / "results.parquet").to_pandas()
     rcsv = pd.read_csv(out / "results.csv", dtype={"wall_id": str})
     assert list(results.columns) == list(rcsv.columns) and len(results) == len(rcsv) == 3 * len(csv)
-    np.testing.assert_allclose(results["utilisation"], rcsv["utilisation"], rtol=1e-12)
+    np.testing.assert_allclose(
+        results["utilisation"], rcsv["utilisation"], rtol=1e-5
+    )  # the CSV holds 6 significant figures
     assert (results["state"].astype(str) == rcsv["state"]).all()
 
 
