@@ -624,14 +624,16 @@ def _draws_figure(draws: dict[str, np.ndarray], pos: int, case: str) -> str:
     """Ultimate utilisation of one case over the draws, all and standing, and the driver's scatter."""
     u = np.asarray(draws["utilisation"][CASES.index(case), pos], dtype=float)
     stands = np.asarray(draws["stands"][pos], dtype=bool)
-    shown = np.clip(np.nan_to_num(u, posinf=5.0), 0.0, 5.0)  # +inf (outside the base) drawn at 5
+    finite = u[np.isfinite(u)]
+    top = float(min(5.0, max(2.0, np.percentile(finite, 99) * 1.1))) if finite.size else 5.0
+    shown = np.clip(np.nan_to_num(u, posinf=top), 0.0, top)  # +inf (outside the base) drawn at the top
     fig = Figure(figsize=(7.0, 2.6))
     ax, bx = fig.subplots(1, 2)
-    bins = np.linspace(0.0, 5.0, 51)
+    bins = np.linspace(0.0, top, 41)
     ax.hist(shown, bins=bins, color="#BBBBBB", label="every draw")
     ax.hist(shown[stands], bins=bins, color="#332288", alpha=0.8, label="wall stands today")
     ax.axvline(1.0, color="#882255", lw=1.5, label="limit (1)")
-    ax.set_xlabel(f"ultimate utilisation, {case} (5 = 5 or more)", fontsize=8)
+    ax.set_xlabel(f"ultimate utilisation, {case} ({top:.1f} = {top:.1f} or more)", fontsize=8)
     ax.set_ylabel("draws", fontsize=8)
     ax.legend(fontsize=7)
     name, best = "", -1.0
