@@ -15,7 +15,15 @@ import pytest
 from typer.testing import CliRunner
 
 from screening.cli import app
-from screening.outputs.webmap import OVERTURNS_COLOUR, margin_class, margin_colours, page_file
+from screening.outputs.webmap import (
+    OVERTURNS_COLOUR,
+    PF_CLASSES,
+    margin_class,
+    margin_colours,
+    page_file,
+    pf_class,
+    pf_colours,
+)
 from tests.browser import browser_page, leaflet_dir
 from tests.conftest import worked_wall
 
@@ -208,3 +216,62 @@ def test_inlined_map_opens_with_every_request_blocked(evil_run: Path) -> None:
         page.goto((evil_run / "map.html").as_uri())
         page.wait_for_function("window.wallscreenMap !== undefined")
         assert page.evaluate("window.wallscreenMap.count") == 2
+
+
+def _contrast(a: str, b: str) -> float:
+    # WCAG 2.x contrast ratio (W3C, "Web Content Accessibility Guidelines 2.1", relative luminance)
+    def lum(h: str) -> float:
+        c = [int(h[i : i + 2], 16) / 255 for i in (1, 3, 5)]
+        c = [x / 12.92 if x <= 0.03928 else ((x + 0.055) / 1.055) ** 2.4 for x in c]
+        return 0.2126 * c[0] + 0.7152 * c[1] + 0.0722 * c[2]
+
+    hi, lo = sorted((lum(a), lum(b)), reverse=True)
+    return (hi + 0.05) / (lo + 0.05)
+
+
+def test_probability_colours_contrast_with_the_land() -> None:
+    # WCAG 2.1 SC 1.4.11: non-text contrast of at least 3:1 against the land colour #F2EFE9
+    for colour in pf_colours():
+        assert _contrast(colour, "#F2EFE9") >= 3.0, colour
+    assert len(set(pf_colours())) == len(pf_colours())
+
+
+def test_probability_classes_follow_p_failure() -> None:
+    p = [0.0, 0.0099, 0.01, 0.05, 0.1, 0.49, 0.5, 0.9, float("nan"), 0.2]
+    bad = [False] * 9 + [True]
+    assert pf_class(p, bad).tolist() == [0, 0, 1, 1, 2, 2, 3, 3, len(PF_CLASSES) + 1, len(PF_CLASSES)]
+
+
+@pytest.mark.browser
+def test_probability_view_colours_each_wall_by_its_class(sample_run: Path) -> None:
+    walls = pd.read_csv(sample_run / "walls.csv").set_index("wall_id")
+    worst = walls[[f"p_failure_{c}" for c in ("drained", "blocked", "surveyed")]].max(axis=1, skipna=True)
+    expected = dict(
+        zip(walls.index, np.array(pf_colours())[pf_class(worst, walls.data_inconsistent)], strict=True)
+    )
+    assert walls.data_inconsistent.astype(str).str.lower().eq("true").any()  # the sample has one by design
+    with browser_page() as page:
+        errors: list[str] = []
+        page.on("pageerror", lambda e: errors.append(str(e)))
+        page.goto((sample_run / "map.html").as_uri())
+        page.wait_for_function("window.wallscreenMap !== undefined")
+        page.get_by_text("Probability of failure").click()
+        page.wait_for_timeout(200)
+        drawn = page.evaluate(
+            """() => { const out = {}; const w = window.wallscreenMap;
+                const b = w.built['Probability of failure'].byId;
+                Object.keys(b).forEach(k => { out[w.data.id[b[k].wsIndex]] = b[k].options.color; });
+                return out; }"""
+        )
+        assert set(drawn) == set(walls.index[walls.located])
+        assert {w: c.upper() for w, c in drawn.items()} == {w: expected[w].upper() for w in drawn}
+        legend = page.locator(".ws-legend").inner_text()
+        assert "under 1 in 100" in legend and "check the data first" in legend
+        first = walls.index[walls.located][0]
+        page.fill("#ws-search-input", first)
+        page.press("#ws-search-input", "Enter")
+        line = page.locator(".ws-popup .ws-pf")
+        line.wait_for()
+        assert "P(failure | stands today)" in line.inner_text()
+        page.screenshot(path=str(sample_run / "map_pf.png"))
+        assert not errors

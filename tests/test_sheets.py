@@ -201,3 +201,23 @@ def test_sheets_report_a_count_as_they_are_written(tmp_path: Path) -> None:
     )
     assert sorted(written) == sorted(ids)
     assert heard == [f"calculation sheet {k} of 9" for k in range(1, 10)]
+
+
+def test_sheet_shows_the_draws_with_samples_on(sheet_run: Path) -> None:
+    # the default run draws samples (method.md §13): the figure and the plain-words caption are there
+    page = (sheet_run / "sheets" / sheet_filename("PLAIN")).read_text(encoding="utf-8")
+    block = page.split('<figure class="draws">', 1)[1].split("</figure>", 1)[0]
+    assert 'src="data:image/png;base64,' in block
+    assert "conditional on the model" in block and "not a substitute for inspection" in block
+
+
+def test_sheet_has_no_draws_with_samples_off(tmp_path: Path) -> None:
+    pd.DataFrame([worked_wall("A", 2.0)]).to_csv(tmp_path / "r.csv", index=False)
+    out = tmp_path / "o"
+    result = runner.invoke(
+        app, ["run", str(tmp_path / "r.csv"), "-o", str(out), "--sheets", "--samples", "0"]
+    )
+    assert result.exit_code == 0, result.output
+    page = (out / "sheets" / sheet_filename("A")).read_text(encoding="utf-8")
+    assert 'class="fig"' in page  # the sheet's own figure is still drawn
+    assert 'class="draws"' not in page and "conditional on the model" not in page

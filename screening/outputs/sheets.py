@@ -22,7 +22,8 @@ from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 from importlib import resources
 from pathlib import Path
-from typing import Any
+from types import SimpleNamespace
+from typing import Any, cast
 
 import jinja2
 import markupsafe
@@ -39,6 +40,7 @@ from screening.core.engine import DERIVED_INPUTS, ENGINE_INPUTS, decode, run_cas
 from screening.io.writers import write_text_atomic
 from screening.outputs import sheet_filename
 from screening.outputs.workbook import CAUTION
+from screening.prepare import Prepared
 from screening.priority import LEAN_CAUTION, near_toe, near_toe_words
 from screening.schema import UNITS
 
@@ -596,6 +598,65 @@ def _required(cfg: Config) -> dict[str, str]:
     }
 
 
+DRAWS_CAPTION = (
+    "The draws of method.md §13: each input drawn from a spread set by how well it is known. Grey: "
+    "every draw; colour: the draws in which the wall could stand today. The probability read from "
+    "them is conditional on the model and on the spreads (settings); it is a screening aid to rank "
+    "walls, not a substitute for inspection by a qualified engineer."
+)
+
+
+def _draws_of(sub: pd.DataFrame, inputs: dict[str, np.ndarray], d: dict[str, np.ndarray], cfg: Config) -> Any:
+    """The §13 draws of these walls (:func:`uncertainty.wall_draws`), or None with samples = 0."""
+    if cfg.samples <= 0:
+        return None
+    from screening.core import uncertainty
+    from screening.probability import uncertainty_inputs
+
+    n = len(sub)
+    joint = np.asarray(d["joint_height_m"], dtype=float).reshape(len(CASES), n).T.reshape(-1)
+    chunk = cast(Prepared, SimpleNamespace(walls=sub, inputs=inputs))
+    p = uncertainty_inputs(chunk, pd.DataFrame({"joint_height_m": joint}))
+    return uncertainty.wall_draws(p, uncertainty.make_draws(cfg.samples, cfg.seed), cfg)
+
+
+def _draws_figure(draws: dict[str, np.ndarray], pos: int, case: str) -> str:
+    """Ultimate utilisation of one case over the draws, all and standing, and the driver's scatter."""
+    u = np.asarray(draws["utilisation"][CASES.index(case), pos], dtype=float)
+    stands = np.asarray(draws["stands"][pos], dtype=bool)
+    finite = u[np.isfinite(u)]
+    top = float(min(5.0, max(2.0, np.percentile(finite, 99) * 1.1))) if finite.size else 5.0
+    shown = np.clip(np.nan_to_num(u, posinf=top), 0.0, top)  # +inf (outside the base) drawn at the top
+    fig = Figure(figsize=(7.0, 2.6))
+    ax, bx = fig.subplots(1, 2)
+    bins = np.linspace(0.0, top, 41)
+    ax.hist(shown, bins=bins, color="#BBBBBB", label="every draw")
+    ax.hist(shown[stands], bins=bins, color="#332288", alpha=0.8, label="wall stands today")
+    ax.axvline(1.0, color="#882255", lw=1.5, label="limit (1)")
+    ax.set_xlabel(f"ultimate utilisation, {case} ({top:.1f} = {top:.1f} or more)", fontsize=8)
+    ax.set_ylabel("draws", fontsize=8)
+    ax.legend(fontsize=7)
+    name, best = "", -1.0
+    for key, v in draws.items():
+        if not key.startswith("value_") or stands.sum() < 3:
+            continue
+        x = np.asarray(v[pos], dtype=float)
+        if np.ptp(x[stands]) == 0 or np.ptp(shown[stands]) == 0:
+            continue  # constant over the standing draws: no rank correlation
+        rho = pd.Series(x[stands]).corr(pd.Series(shown[stands]), method="spearman")
+        if np.isfinite(rho) and abs(rho) > best:
+            name, best = key[6:], abs(rho)
+    if name:
+        x = np.asarray(draws[f"value_{name}"][pos], dtype=float)
+        bx.scatter(x[~stands], shown[~stands], s=3, color="#BBBBBB")
+        bx.scatter(x[stands], shown[stands], s=3, color="#332288")
+        bx.set_xlabel(f"{name} (drawn)", fontsize=8)
+    bx.axhline(1.0, color="#882255", lw=1.5)
+    bx.set_ylabel("ultimate utilisation", fontsize=8)
+    fig.subplots_adjust(left=0.08, right=0.99, top=0.95, bottom=0.2, wspace=0.3)
+    return _png_data_uri(fig)
+
+
 def sheet_context(
     wall: pd.Series,
     d: dict[str, np.ndarray],
@@ -728,11 +789,12 @@ def write_sheets(
     d["_w_base"] = config.gamma_w_kn_m3 * hw
     d["_near_toe_text"] = _near_toe_text(d, config)
     d.update(_critical_rows(sub, inputs, config, tiled))
+    draws = _draws_of(sub, inputs, d, config) if with_figure else None
     folder = Path(out_dir) / "sheets"
     folder.mkdir(parents=True, exist_ok=True)
     _template()  # compiled once, before any worker is forked
     global _JOB
-    _JOB = (sub, d, assumptions, config, provenance, with_figure, folder)
+    _JOB = (sub, d, assumptions, config, provenance, with_figure, folder, draws)
     try:
         if n >= 8 and "fork" in mp.get_all_start_methods() and (os.cpu_count() or 1) > 1:
             # drawing the figures dominates: share the work among the cores (forked
@@ -788,13 +850,17 @@ def _near_toe_text(d: dict[str, np.ndarray], config: Config) -> np.ndarray:
 
 
 def _write_one(pos: int) -> tuple[str, str]:
-    sub, d, assumptions, config, provenance, with_figure, folder = _JOB
+    sub, d, assumptions, config, provenance, with_figure, folder, draws = _JOB
     n = len(sub)
     wall = sub.iloc[pos]
     j = {case: pos + c * n for c, case in enumerate(CASES)}
     wid = str(wall["wall_id"])
     own = assumptions[assumptions["wall_id"].astype(str) == wid]
-    page = sheet_html(wall, d, j, own, config, provenance, with_figure)
+    context = sheet_context(wall, d, j, own, config, provenance, with_figure)
+    if draws is not None:
+        case = max(CASES, key=lambda c: float(np.nan_to_num(d["utilisation"][j[c]], posinf=1e300)))
+        context |= {"draws_figure": _draws_figure(draws, pos, case), "draws_caption": DRAWS_CAPTION}
+    page = _template().render(context)
     name = sheet_filename(wid)
     write_text_atomic(folder / name, page)
     return wid, f"sheets/{name}"

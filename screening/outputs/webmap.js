@@ -16,6 +16,8 @@
   // the map opens on the first view: the priority bands
   var views = [["Priority band", "band"], ["Worst case", -1]];
   D.cases.forEach(function (c, k) { views.push(["Case: " + CASE_NAMES[c], k]); });
+  // the probability view exists only when the run drew samples (method.md §13)
+  if (D.pfCls) views.push(["Probability of failure", "pf"]);
   var renderer = S.canvas ? L.canvas({padding: 0.5}) : undefined;
 
   function el(tag, text, cls) {
@@ -32,6 +34,7 @@
   function bandOf(i) { return D.bandNames[D.band[i]]; }
   function colourOf(i, view) {
     if (view === "band") return S.bandColours[S.bands.indexOf(bandOf(i))];
+    if (view === "pf") return S.pfColours[D.pfCls[i]];
     var k = view === -1 ? D.worst[i] : view;
     return S.colours[D.cls[k][i]];
   }
@@ -72,6 +75,7 @@
       t.appendChild(r);
     });
     d.appendChild(t);
+    probabilityLine(d, i);
     ownerNotes(d, i);
     if (D.sheet[i]) {
       var a = el("a", "Calculation sheet"); a.href = D.sheet[i]; a.target = "_blank"; a.rel = "noopener";
@@ -92,6 +96,17 @@
     if (D.nearToe && D.nearToe[k][i]) return D.nearToeText;
     if (D.annexD && D.annexD[i]) return fmt(D.q[k][i], 0) + " / R " + fmt(D.R[k][i], 0) + " kN/m (Annex D)";
     return fmt(D.q[k][i], 0) + " / " + fmt(D.qa[i], 0);
+  }
+  // one line: the chance of failure per case, given the wall stands today, and what to measure next
+  function probabilityLine(d, i) {
+    if (!D.pf) return;
+    var parts = D.cases.map(function (c, k) {
+      var p = D.pf[k][i];
+      return CASE_NAMES[c] + " " + (p === null || Number.isNaN(p) ? "–" : fmt(p, 3));
+    });
+    var text = "P(failure | stands today): " + parts.join(", ");
+    if (D.mn[i]) text += "; measure next: " + D.mn[i];
+    d.appendChild(el("div", text, "ws-pf"));
   }
   function ownerNotes(d, i) {
     if (!D.notes) return;
@@ -170,6 +185,11 @@
       d.appendChild(el("b", "Inspection priority"));
       S.bands.forEach(function (b, k) { var r = el("div"); var s = el("span", null, "sw");
         s.style.background = S.bandColours[k]; r.appendChild(s); r.appendChild(el("span", S.bandText[k]));
+        d.appendChild(r); });
+    } else if (view === "pf") {
+      d.appendChild(el("b", "Chance of failure, worst case, given the wall stands today"));
+      S.pfColours.forEach(function (c, k) { var r = el("div"); var s = el("span", null, "sw");
+        s.style.background = c; r.appendChild(s); r.appendChild(el("span", S.pfText[k]));
         d.appendChild(r); });
     } else {
       var which = view === -1 ? "worst of the three cases" : CASE_NAMES[D.cases[view]];

@@ -51,6 +51,57 @@ OVERLAY_COLOUR = "#FFD400"
 """The halo of an overlay (e.g. the walls changed since the last run), under the wall's colour."""
 OVERTURNS_TEXT = "resultant outside the base: the wall overturns in this case"
 
+# Probability-of-failure classes (method.md §13), darkest = most likely: the dark end of Paul Tol's
+# sequential "iridescent" scheme (P. Tol, "Colour schemes", SRON technical note, 2021), each with a
+# WCAG 2 contrast ratio of at least 3:1 against the map's land colour (tests/test_map.py checks it).
+PF_CLASSES: Sequence[tuple[float, str, str]] = (
+    (0.01, "#9D7DB2", "under 1 in 100"),
+    (0.1, "#906388", "1 in 100 to 1 in 10"),
+    (0.5, "#684957", "1 in 10 to 1 in 2"),
+    (np.inf, "#46353A", "over 1 in 2"),
+)
+PF_CHECK_DATA = (BAND_COLOURS["check_data"], "check the data first: the figures say it could not stand")
+PF_NOT_COMPUTED = ("#707070", "not computed")
+
+
+def pf_class(p_failure: Any, data_inconsistent: Any) -> np.ndarray:
+    """Class of each wall's worst-case p_failure: 0..3 by :data:`PF_CLASSES`, 4 for figures that
+    cannot be right, 5 where no probability was computed (blank)."""
+    p = np.asarray(p_failure, dtype=float)
+    edges = np.array([c[0] for c in PF_CLASSES[:-1]])
+    cls = np.searchsorted(edges, np.nan_to_num(p, nan=0.0), side="right")
+    bad = np.asarray(pd.Series(np.asarray(data_inconsistent, dtype=object)).map(_truthy), dtype=bool)
+    return np.where(bad, len(PF_CLASSES), np.where(np.isnan(p), len(PF_CLASSES) + 1, cls))
+
+
+def _truthy(v: Any) -> bool:
+    return str(v).strip().lower() in ("true", "1", "yes")
+
+
+def pf_colours() -> list[str]:
+    """Colour of each probability class, in class order."""
+    return [c[1] for c in PF_CLASSES] + [PF_CHECK_DATA[0], PF_NOT_COMPUTED[0]]
+
+
+def probability_data(w: pd.DataFrame) -> dict[str, Any]:
+    """The probability view's lists: ``pf`` per case, ``pfCls`` of the worst case, ``mn`` measure
+    next; empty (no view) when the run had samples = 0."""
+    cols = [f"p_failure_{c}" for c in CASES]
+    if not all(c in w for c in cols):
+        return {}
+    flagged = "data_inconsistent" in w and bool(w["data_inconsistent"].map(_truthy).any())
+    if not w[cols].notna().to_numpy().any() and not flagged:
+        return {}
+    worst = w[cols].to_numpy(dtype=float)
+    worst = np.where(np.isnan(worst).all(axis=1), np.nan, np.nanmax(np.nan_to_num(worst, nan=-1.0), axis=1))
+    mn = w["measure_next"] if "measure_next" in w else pd.Series([""] * len(w))
+    return {
+        "pf": [_rounded(w[c], 4) for c in cols],
+        "pfCls": pf_class(worst, w.get("data_inconsistent", pd.Series([False] * len(w)))).tolist(),
+        "mn": [("" if pd.isna(v) else str(v)) for v in mn],
+    }
+
+
 CAUTION = (
     "Screening aid only: a colour means 'look here first', not 'failed'. Results must be reviewed "
     "by a qualified engineer; local codes and the asset owner's standards govern."
@@ -284,6 +335,7 @@ def build_map(
         Name -> {wall id: text} overlays (e.g. "changed since the last survey").
     """
     data = map_data(walls, geometry, results, sheets, near_toe_m)
+    data |= probability_data(walls[walls["located"].to_numpy(dtype=bool)].reset_index(drop=True))
     n = len(data["id"])
     bounds = _bounds(data["xy"])
     m = _base_map(bounds, canvas=n > CANVAS_FROM, tiles=tiles)
@@ -388,6 +440,8 @@ def _settings(
         "overlayColour": OVERLAY_COLOUR,
         "leaflet": leaflet_url,
         "canvas": canvas,
+        "pfColours": pf_colours(),
+        "pfText": [c[2] for c in PF_CLASSES] + [PF_CHECK_DATA[1], PF_NOT_COMPUTED[1]],
     }
 
 
