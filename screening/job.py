@@ -471,6 +471,9 @@ def _write_all(
     if sheet_ids:
         step(f"{len(sheet_ids)} calculation sheets")
         job.sheets.update(write_explanations(job, sheet_ids, out))
+        from screening.io.outfolder import remove_stale_sheets
+
+        remove_stale_sheets(Path(out), job.sheets.values())
         outputs["sheets"] = out / "sheets"
     step("workbook")
     outputs["workbook"] = write_workbook(

@@ -153,3 +153,13 @@ def refuse_incomplete(folder: Path) -> dict[str, object]:
                 f"{unfinished} or was changed since ({entry['file']} does not match {MANIFEST_NAME})"
             )
     return dict(manifest)
+
+
+def remove_stale_sheets(out: Path, kept: Iterable[str]) -> list[str]:
+    """Drop calculation sheets (``sheets/*.html``) of walls no longer written, e.g. gone from the register."""
+    folder = out / "sheets"
+    keep = {Path(k).name for k in kept}
+    stale = [p for p in folder.glob("*.html") if p.name not in keep] if folder.is_dir() else []
+    for p in stale:
+        p.unlink(missing_ok=True)
+    return [p.name for p in stale]
