@@ -611,7 +611,10 @@ def compare(
             rejected = json.loads(runs.set_index("run_id").at[b_id, "rejected_walls"] or "[]")
             label = f"run {a_id} → run {b_id}"
         elif first is not None and second is not None:
+            from screening.io.outfolder import refuse_incomplete
+
             for folder in (first, second):
+                refuse_incomplete(folder)
                 if not (folder / "walls.csv").exists():
                     raise ScreeningError(f"{folder}: no walls.csv (not a wallscreen result folder)")
             before = read_result_csv(first / "walls.csv")

@@ -431,6 +431,31 @@ def write_outputs(
     map_options: MapOptions | None = None,
     sheet_ids: list[str] | None = None,
 ) -> dict[str, Path]:
+    """Every output under an exclusive lock of the folder, the manifest last (see io.outfolder)."""
+    from screening.io.outfolder import begin_writing, folder_lock, write_manifest
+
+    out = Path(out_dir)
+    with folder_lock(out):
+        begin_writing(out)
+        outputs = _write_all(job, out, progress=progress, map_options=map_options, sheet_ids=sheet_ids)
+        head = {
+            "run_id": job.run_id,
+            "input_file": job.info.input_file,
+            "input_sha256": job.info.input_sha256,
+            "tool_version": job.info.tool_version,
+        }
+        outputs["manifest"] = write_manifest(out, head)
+    return outputs
+
+
+def _write_all(
+    job: JobResult,
+    out_dir: str | Path,
+    *,
+    progress: Progress | None = None,
+    map_options: MapOptions | None = None,
+    sheet_ids: list[str] | None = None,
+) -> dict[str, Path]:
     """Write every output of a run into ``out_dir``, each file atomically."""
     from screening.outputs.geopackage import write_geopackage
     from screening.outputs.workbook import write_workbook
@@ -454,6 +479,9 @@ def write_outputs(
     if sheet_ids:
         step(f"{len(sheet_ids)} calculation sheets")
         job.sheets.update(write_explanations(job, sheet_ids, out, progress=step))
+        from screening.io.outfolder import remove_stale_sheets
+
+        remove_stale_sheets(Path(out), job.sheets.values())
         outputs["sheets"] = out / "sheets"
     step("workbook")
     outputs["workbook"] = write_workbook(
@@ -500,10 +528,12 @@ def write_parquet(job: JobResult, out: Path) -> dict[str, Path]:
 def rerender_map(results_dir: str | Path, options: MapOptions | None = None) -> Path:
     """Re-render ``map.html`` from the outputs of an earlier run (walls.gpkg, results.csv, run.json)."""
     from screening.errors import RegisterError
+    from screening.io.outfolder import refuse_incomplete
     from screening.io.readers import read_result_csv
     from screening.outputs.geopackage import read_geopackage
 
     folder = Path(results_dir)
+    manifest = refuse_incomplete(folder)
     needed = [folder / "walls.gpkg", folder / "results.csv", folder / "run.json"]
     missing = [p.name for p in needed if not p.exists()]
     if missing:
@@ -531,4 +561,9 @@ def rerender_map(results_dir: str | Path, options: MapOptions | None = None) -> 
             str(r["wall_id"]): describe_change(r) for _, r in moved.iterrows()
         }
     carried = _carried_lines(changes) if (folder / "changes.csv").exists() else []
-    return _write_map(folder, walls, geometry, results, info, sheets, layers, options, carried=carried)
+    path = _write_map(folder, walls, geometry, results, info, sheets, layers, options, carried=carried)
+    if manifest:  # the new map.html is part of the finished folder
+        from screening.io.outfolder import write_manifest
+
+        write_manifest(folder, {k: v for k, v in manifest.items() if k != "files"})
+    return path
