@@ -242,3 +242,18 @@ def test_sample_register_has_a_wall_whose_figures_cannot_be_right() -> None:
     assert walls.loc["HV-102", "data_inconsistent"]
     assert walls.loc["HV-102", "priority_band"] == "check_data"
     assert (walls["measure_next"].fillna("") != "").sum() > 10
+
+
+def test_the_sample_config_file_loads_with_every_setting_where_it_belongs() -> None:
+    # the settings of §13 were once written below a [table] header, where TOML files them
+    # inside that table: the sample file must load and set them at the top level
+    import tomllib
+    from pathlib import Path
+
+    from screening.config import load_config
+
+    path = Path(__file__).resolve().parents[1] / "sample_inventory" / "config.toml"
+    top = tomllib.loads(path.read_text(encoding="utf-8"))
+    assert "samples" in top and "seed" in top
+    config = load_config(path)
+    assert config.samples == top["samples"] and config.seed == top["seed"]
