@@ -176,6 +176,7 @@ def test_ids_differing_by_case_are_two_walls(case_run: Path) -> None:
             assert popup.locator("b").first.inner_text() == wall
             page.keyboard.press("Escape")
             page.evaluate("window.wallscreenMap.map.closePopup()")
+            page.locator(".ws-popup").wait_for(state="detached", timeout=5000)  # its fade-out
         # ignoring case only when one wall matches: x-9 finds X-9; a case-folded W1 is ambiguous
         page.fill("#ws-search-input", "x-9")
         page.press("#ws-search-input", "Enter")
