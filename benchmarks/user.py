@@ -1,6 +1,10 @@
 """Where the user waits (issue #18): ``screen()`` against reading the CSV, ``wallscreen run`` and
 ``wallscreen demo`` end to end in a subprocess, with the peak memory summed over every process
-of the run (sampled with psutil every 20 ms) and the size of ``results.csv``."""
+of the run (sampled with psutil every 20 ms) and the size of ``results.csv``.
+
+``screen()`` and ``wallscreen run`` are timed with ``samples = 0``: the pipeline around the engine,
+the figures of issue #18 (the Monte Carlo of method.md §13 has its own benchmark,
+``benchmarks/uncertainty.py``). The demo runs as a user runs it, with the default draws."""
 
 from __future__ import annotations
 
@@ -17,12 +21,13 @@ def screen_rows(n: int, folder: Path) -> list[dict[str, object]]:
     """``screen()`` on n walls read from CSV, against ``pd.read_csv`` of the same file (side by side)."""
     from benchmarks.run import _best, synthetic_register
     from screening import screen
+    from screening.config import Config
 
     csv = folder / f"screen_{n}.csv"
     synthetic_register(n).to_csv(csv, index=False)
     t_read = _best(lambda: pd.read_csv(csv), repeat=3)
     register = pd.read_csv(csv)
-    t_screen = _best(lambda: screen(register), repeat=1)
+    t_screen = _best(lambda: screen(register, Config(samples=0)), repeat=1)
     return [{"walls": n, "pandas read_csv s": t_read, "screen() s": t_screen, "ratio": t_screen / t_read}]
 
 
@@ -73,7 +78,8 @@ def run_rows(n: int, folder: Path) -> list[dict[str, object]]:
     csv = folder / f"run_{n}.csv"
     synthetic_register(n).to_csv(csv, index=False)
     out = folder / f"run_{n}_out"
-    seconds, peak = timed_subprocess([sys.executable, "-m", "screening", "run", str(csv), "-o", str(out)])
+    args = [sys.executable, "-m", "screening", "run", str(csv), "-o", str(out), "--samples", "0"]
+    seconds, peak = timed_subprocess(args)
     results = out / "results.csv"
     sizes = {p.name: p.stat().st_size / 1e6 for p in out.iterdir() if p.is_file()}
     return [
