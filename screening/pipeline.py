@@ -529,7 +529,8 @@ def screen(register: pd.DataFrame, config: Config | None = None) -> pd.DataFrame
     Returns
     -------
     pandas.DataFrame
-        One row per wall and case with the columns of :data:`RESULT_COLUMNS`.
+        One row per wall and case with the columns of :data:`RESULT_COLUMNS` (the probability
+        columns blank with ``samples = 0``).
         Rows of the register that fail validation are left out and listed in a
         :class:`RejectedRowsWarning`.
     """
@@ -542,7 +543,7 @@ def screen(register: pd.DataFrame, config: Config | None = None) -> pd.DataFrame
         warnings.warn(
             f"{errors['row'].nunique()} row(s) rejected: {listing}", RejectedRowsWarning, stacklevel=2
         )
-    return run.results[list(RESULT_COLUMNS)].reset_index(drop=True)
+    return run.results.reindex(columns=list(RESULT_COLUMNS)).reset_index(drop=True)
 
 
 __all__ = ["RESULT_COLUMNS", "Screening", "evaluate", "screen"]

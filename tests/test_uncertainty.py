@@ -208,6 +208,27 @@ def test_samples_off_leaves_the_columns_blank_and_ranks_by_utilisation() -> None
     assert "p_stands" not in run.walls
 
 
+def test_screen_with_samples_off_returns_every_result_column_blank_where_drawn() -> None:
+    from screening import RESULT_COLUMNS, screen
+
+    out = screen(REGISTER.head(5), Config(samples=0))
+    assert list(out.columns) == list(RESULT_COLUMNS) and len(out) == 15
+    assert out["p_failure"].isna().all() and out["utilisation"].notna().all()
+
+
+def test_ranks_in_the_shared_order_of_the_draws_match_scipy() -> None:
+    # scipy.stats.rankdata "average" (the reference library) on clamped, tied and unsorted rows
+    rng = np.random.default_rng(1)
+    z = rng.standard_normal(300)
+    order = np.argsort(z, kind="stable")
+    x = np.stack([np.clip(30 + 5 * z, 25, 38), np.exp(0.3 * z), np.full(300, 2.0), np.sin(3 * z)])
+    mask = rng.random(x.shape) < 0.6
+    ours = uncertainty.ordered_ranks(x, order, mask)
+    for i in range(len(x)):
+        np.testing.assert_allclose(ours[i, mask[i]], stats.rankdata(x[i, mask[i]]))
+        assert np.isnan(ours[i, ~mask[i]]).all()
+
+
 def test_average_ranks_match_scipy() -> None:
     # scipy.stats.rankdata with method="average" (the reference library)
     rng = np.random.default_rng(0)

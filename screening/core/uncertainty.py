@@ -82,6 +82,12 @@ class Draws:
         return int(self.z.shape[0])
 
 
+def draw_orders(draws: Draws) -> list[NDArray[np.intp]]:
+    """Per driver (:data:`DRIVERS`), the order that sorts its column of draws (Z, then U for the water)."""
+    columns = [draws.z[:, k] for k in range(len(DRAWN))] + [draws.u]
+    return [np.argsort(c, kind="stable") for c in columns]
+
+
 def make_draws(samples: int, seed: int) -> Draws:
     """One matrix of draws per run from numpy's PCG64 (method.md §13): Z first, then U."""
     rng = np.random.Generator(np.random.PCG64(seed))
@@ -271,6 +277,35 @@ def average_ranks(values: FloatArray, mask: NDArray[np.bool_]) -> FloatArray:
     return np.where(mask, ranks, np.nan)
 
 
+def ordered_ranks(values: FloatArray, order: NDArray[np.intp], mask: NDArray[np.bool_]) -> FloatArray:
+    """:func:`average_ranks` of ``values`` (walls × n) for draws that a shared ``order`` of the n
+    draws sorts in every row: a gather and running counts in place of a sort per wall.
+
+    A drawn input is a non-decreasing function of its own column of the common random numbers
+    (δ + sd·Z clamped, γ·(1 + sd·Z), exp(σZ), the water from U), so the order of that column sorts
+    it for every wall at once; ties (a clamp, an SD of 0) are equal neighbours in that order and get
+    their average rank as before. A row the order does not sort (NaN, or a decreasing function)
+    falls back to :func:`average_ranks`, so the ranks are the same in every case.
+    """
+    s = values[:, order]
+    m = mask[:, order]
+    counted = np.cumsum(m, axis=-1)
+    differs = np.ones(s.shape, dtype=bool)
+    differs[:, 1:] = s[:, 1:] != s[:, :-1]
+    before = np.maximum.accumulate(np.where(differs, counted - m, 0), axis=-1)
+    ends = np.ones(s.shape, dtype=bool)
+    ends[:, :-1] = differs[:, 1:]
+    big = np.iinfo(counted.dtype).max
+    through = np.flip(np.minimum.accumulate(np.flip(np.where(ends, counted, big), axis=-1), axis=-1), axis=-1)
+    ranks = np.empty(s.shape)
+    ranks[:, order] = (before + 1 + through) / 2.0
+    ranks = np.where(mask, ranks, np.nan)
+    unsorted = ~(s[:, 1:] >= s[:, :-1]).all(axis=-1)
+    if unsorted.any():
+        ranks[unsorted] = average_ranks(values[unsorted], mask[unsorted])
+    return ranks
+
+
 def spearman(x: FloatArray, y: FloatArray, mask: NDArray[np.bool_]) -> FloatArray:
     """Spearman rank correlation of x and y along the last axis over the entries in ``mask``
     (average ranks for ties); NaN where either is constant there or fewer than 2 entries."""
@@ -311,9 +346,10 @@ def _candidates(p: Mapping[str, FloatArray], case: int | None) -> list[NDArray[n
 
 def statistics(
     u: FloatArray, outside: NDArray[np.bool_], values: Mapping[str, FloatArray], p: Mapping[str, FloatArray],
-    config: Config,
+    config: Config, orders: list[NDArray[np.intp]],
 ) -> dict[str, NDArray]:  # fmt: skip
-    """Standing, probabilities and drivers of one pass (method.md §13); see :func:`evaluate`."""
+    """Standing, probabilities and drivers of one pass (method.md §13); see :func:`evaluate`.
+    ``orders`` are the run's :func:`draw_orders`."""
     fails = u > 1.0
     measured = np.asarray(p["water_measured"])[:, None] > 0
     stands = ~fails[CASES.index("drained")] & ~(measured & fails[CASES.index("surveyed")])
@@ -327,7 +363,7 @@ def statistics(
     p_fail = np.where(inconsistent, np.nan, p_fail)
     p_out = np.where(inconsistent, np.nan, p_out)
     # ranks of each input among the standing draws, once for every case
-    x = [average_ranks(values[name], stands) for name in DRIVERS]
+    x = [ordered_ranks(values[name], order, stands) for name, order in zip(DRIVERS, orders, strict=True)]
     drivers = np.full(u.shape[:2], -1, dtype=np.int8)
     enough = k >= MIN_STANDING_FOR_DRIVER
     for case in range(len(CASES)):
@@ -335,8 +371,11 @@ def statistics(
         rho = [_rank_correlation(rx, ru, stands) for rx in x]
         drivers[case] = np.where(enough, _pick_driver(rho, _candidates(p, case)), -1)
     everywhere = np.ones(stands.shape, dtype=bool)
-    flag = stands.astype(float)
-    rho = [spearman(values[name], flag, everywhere) for name in DRIVERS[:-1]] + [np.full(len(k), np.nan)]
+    flag = average_ranks(stands.astype(float), everywhere)
+    rho = [
+        _rank_correlation(ordered_ranks(values[name], order, everywhere), flag, everywhere)
+        for name, order in zip(DRIVERS[:-1], orders, strict=False)
+    ] + [np.full(len(k), np.nan)]
     standing = np.where(k > 0, _pick_driver(rho, _candidates(p, None)), -1).astype(np.int8)
     drivers = np.where(inconsistent, standing, drivers).astype(np.int8)
     return {
@@ -379,12 +418,13 @@ def evaluate(inputs: Mapping[str, NDArray], draws: Draws, config: Config) -> dic
     p = {k: np.asarray(inputs[k], dtype=float) for k in UNCERTAINTY_INPUTS}
     walls = len(p["height_m"])
     per_pass = max(1, int(config.samples_chunk) // max(draws.n, 1))
+    orders = draw_orders(draws)
     pieces = []
     for start in range(0, walls, per_pass):
         sub = {k: v[start : start + per_pass] for k, v in p.items()}
         d, values = drawn_inputs(sub, draws, config)
         u, outside = ultimate_utilisation(d, values["ultimate_bearing_kpa"], sub, config)
-        pieces.append(statistics(u, outside, values, sub, config))
+        pieces.append(statistics(u, outside, values, sub, config, orders))
     if not pieces:
         return _empty()
     return {k: np.concatenate([piece[k] for piece in pieces], axis=-1) for k in pieces[0]}
