@@ -289,13 +289,13 @@ def ordered_ranks(values: FloatArray, order: NDArray[np.intp], mask: NDArray[np.
     """
     s = values[:, order]
     m = mask[:, order]
-    counted = np.cumsum(m, axis=-1)
+    counted = np.cumsum(m, axis=-1, dtype=np.int64)
     differs = np.ones(s.shape, dtype=bool)
     differs[:, 1:] = s[:, 1:] != s[:, :-1]
     before = np.maximum.accumulate(np.where(differs, counted - m, 0), axis=-1)
     ends = np.ones(s.shape, dtype=bool)
     ends[:, :-1] = differs[:, 1:]
-    big = np.iinfo(counted.dtype).max
+    big = np.iinfo(np.int64).max
     through = np.flip(np.minimum.accumulate(np.flip(np.where(ends, counted, big), axis=-1), axis=-1), axis=-1)
     ranks = np.empty(s.shape)
     ranks[:, order] = (before + 1 + through) / 2.0
