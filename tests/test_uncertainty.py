@@ -227,6 +227,9 @@ def test_ranks_in_the_shared_order_of_the_draws_match_scipy() -> None:
     for i in range(len(x)):
         np.testing.assert_allclose(ours[i, mask[i]], stats.rankdata(x[i, mask[i]]))
         assert np.isnan(ours[i, ~mask[i]]).all()
+    flags = rng.random((3, 40)) < np.array([[0.0], [0.3], [1.0]])
+    for row, ranks in zip(flags, uncertainty._flag_ranks(flags), strict=True):
+        np.testing.assert_array_equal(ranks, stats.rankdata(row.astype(float)))
 
 
 def test_average_ranks_match_scipy() -> None:

@@ -200,25 +200,38 @@ def _plane_term(fos_sliding: FloatArray, ecc: FloatArray, width: FloatArray) -> 
 def _joint_term(
     d: Mapping[str, FloatArray], hw: FloatArray, p: Mapping[str, FloatArray], config: Config
 ) -> FloatArray:
-    """The ultimate term on the deterministic governing bed joint of each case (method.md §8, §13)."""
+    """The ultimate term on the deterministic governing bed joint of each case (method.md §8, §13).
+
+    A wall whose governing joint is the same plane in all three cases (most are) has that plane's
+    geometry computed once for the three water heights; the others one plane per case."""
     heights = np.stack([np.asarray(p[f"joint_height_{c}_m"], dtype=float) for c in CASES])  # (3, w)
     out = np.zeros(hw.shape)
-    rows = np.flatnonzero(np.isfinite(heights).any(axis=0))
-    if not rows.size:
-        return out
-    z = np.nan_to_num(heights[:, rows], nan=0.0)[:, :, None]  # (3, w_j, 1); 0 = no plane, masked below
+    one_plane = np.isfinite(heights[0]) & (heights[0] == heights[1]) & (heights[1] == heights[2])
+    rows = np.flatnonzero(one_plane)
+    if rows.size:
+        out[:, rows] = _plane_terms(d, hw, heights[:1, rows], rows, config)
+    rows = np.flatnonzero(np.isfinite(heights).any(axis=0) & ~one_plane)
+    if rows.size:
+        term = _plane_terms(d, hw, np.nan_to_num(heights[:, rows], nan=0.0), rows, config)
+        out[:, rows] = np.where(np.isfinite(heights[:, rows])[:, :, None], term, 0.0)  # 0 = no plane
+    return out
+
+
+def _plane_terms(
+    d: Mapping[str, FloatArray], hw: FloatArray, z: FloatArray, rows: NDArray[np.intp], config: Config
+) -> FloatArray:
+    """The plane term of the walls ``rows`` on the joints at heights ``z`` (1 or 3 rows of cases)."""
     sub = {k: v[rows] for k, v in d.items()}
-    plane = engine.crack_section(sub | {"crack_height_m": z})
+    zz = z[:, :, None]  # (1 or 3, w, 1)
+    plane = engine.crack_section(sub | {"crack_height_m": zz})
     res = engine.section_checks(
         plane,
-        np.maximum(hw[:, rows] - z, 0.0),
+        np.maximum(hw[:, rows] - zz, 0.0),
         uplift=False,
         friction_deg=sub["joint_friction_deg"],
         config=config,
     )
-    term = _plane_term(res["fos_sliding"], res["eccentricity_m"], plane["base_width_m"])
-    out[:, rows] = np.where(np.isfinite(heights[:, rows])[:, :, None], term, 0.0)
-    return out
+    return _plane_term(res["fos_sliding"], res["eccentricity_m"], plane["base_width_m"])
 
 
 def ultimate_utilisation(
@@ -314,13 +327,29 @@ def spearman(x: FloatArray, y: FloatArray, mask: NDArray[np.bool_]) -> FloatArra
 
 def _rank_correlation(rx: FloatArray, ry: FloatArray, mask: NDArray[np.bool_]) -> FloatArray:
     """Pearson correlation of two rank arrays (NaN outside ``mask``) along the last axis."""
+    return _correlation(_centred(rx, mask), _centred(ry, mask))
+
+
+def _centred(ranks: FloatArray, mask: NDArray[np.bool_]) -> tuple[FloatArray, FloatArray]:
+    """Ranks less their mean (k + 1)/2 over ``mask`` (0 outside it) and their sum of squares."""
     k = mask.sum(axis=-1, keepdims=True)
-    mid = (k + 1) / 2.0
-    dx, dy = np.nan_to_num(rx - mid), np.nan_to_num(ry - mid)
+    d = np.where(mask, ranks - (k + 1) / 2.0, 0.0)
+    return d, (d * d).sum(axis=-1)
+
+
+def _correlation(x: tuple[FloatArray, FloatArray], y: tuple[FloatArray, FloatArray]) -> FloatArray:
+    """Pearson correlation of two :func:`_centred` rank arrays; NaN where either is constant."""
+    (dx, sx), (dy, sy) = x, y
     cov = (dx * dy).sum(axis=-1)
-    var = (dx * dx).sum(axis=-1) * (dy * dy).sum(axis=-1)
+    var = sx * sy
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(var > 0, cov / np.sqrt(var), np.nan)
+
+
+def _flag_ranks(flag: NDArray[np.bool_]) -> FloatArray:
+    """Average ranks of a true/false array along the last axis (false ranks below true)."""
+    falses = (~flag).sum(axis=-1, keepdims=True)
+    return np.where(flag, falses + (flag.shape[-1] - falses + 1) / 2.0, (falses + 1) / 2.0)
 
 
 def _pick_driver(rho: list[FloatArray], allowed: list[NDArray[np.bool_]]) -> NDArray[np.int8]:
@@ -363,17 +392,20 @@ def statistics(
     p_fail = np.where(inconsistent, np.nan, p_fail)
     p_out = np.where(inconsistent, np.nan, p_out)
     # ranks of each input among the standing draws, once for every case
-    x = [ordered_ranks(values[name], order, stands) for name, order in zip(DRIVERS, orders, strict=True)]
+    x = [
+        _centred(ordered_ranks(values[name], order, stands), stands)
+        for name, order in zip(DRIVERS, orders, strict=True)
+    ]
     drivers = np.full(u.shape[:2], -1, dtype=np.int8)
     enough = k >= MIN_STANDING_FOR_DRIVER
     for case in range(len(CASES)):
-        ru = average_ranks(u[case], stands)
-        rho = [_rank_correlation(rx, ru, stands) for rx in x]
+        ru = _centred(average_ranks(u[case], stands), stands)
+        rho = [_correlation(rx, ru) for rx in x]
         drivers[case] = np.where(enough, _pick_driver(rho, _candidates(p, case)), -1)
     everywhere = np.ones(stands.shape, dtype=bool)
-    flag = average_ranks(stands.astype(float), everywhere)
+    flag = _centred(_flag_ranks(stands), everywhere)
     rho = [
-        _rank_correlation(ordered_ranks(values[name], order, everywhere), flag, everywhere)
+        _correlation(_centred(ordered_ranks(values[name], order, everywhere), everywhere), flag)
         for name, order in zip(DRIVERS[:-1], orders, strict=False)
     ] + [np.full(len(k), np.nan)]
     standing = np.where(k > 0, _pick_driver(rho, _candidates(p, None)), -1).astype(np.int8)
