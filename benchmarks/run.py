@@ -253,7 +253,7 @@ def machine() -> str:
 
 def _table(title: str, rows: list[dict[str, object]]) -> None:
     print(f"\n{title}")
-    print(pd.DataFrame(rows).to_string(index=False, float_format=lambda v: f"{v:,.3g}"))
+    print(pd.DataFrame(rows).to_string(index=False, na_rep="", float_format=lambda v: f"{v:,.3g}"))
 
 
 def user_only() -> None:
