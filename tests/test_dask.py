@@ -253,3 +253,49 @@ def test_cli_run_with_two_workers_writes_the_tables_of_the_local_run(tmp_path: P
         a = (tmp_path / "local" / name).read_bytes()
         b = (tmp_path / "cluster" / name).read_bytes()
         assert a == b, name
+
+
+def test_the_three_commands_of_the_readme_scheduler_worker_and_run_with_dask(tmp_path: Path) -> None:
+    """`dask scheduler`, `dask worker ADDRESS` and `wallscreen run ... --dask ADDRESS`, as separate
+    processes (the README's cluster section), give the tables of the local run."""
+    import subprocess
+    import sys
+
+    from screening.demo import sample_paths
+
+    address = f"tcp://127.0.0.1:{_free_port()}"
+    env = dict(os.environ, PYTHONPATH=str(ROOT))
+    dask = [sys.executable, "-m", "dask"]
+    port = address.rsplit(":", 1)[1]
+    logs = (tmp_path / "scheduler.log").open("w"), (tmp_path / "worker.log").open("w")
+    scheduler = subprocess.Popen(
+        [*dask, "scheduler", "--host", "127.0.0.1", "--port", port, "--no-dashboard"],
+        env=env, cwd=ROOT, stdout=logs[0], stderr=subprocess.STDOUT,
+    )  # fmt: skip
+    worker = subprocess.Popen(
+        [*dask, "worker", address, "--nworkers", "1", "--nthreads", "1", "--no-dashboard"],
+        env=env, cwd=ROOT, stdout=logs[1], stderr=subprocess.STDOUT,
+    )  # fmt: skip
+    try:
+        with distributed.Client(address, timeout=30) as c:
+            c.wait_for_workers(1, timeout=60)
+            # the worker runs this checkout's code (a lambda travels by value, this module need not import)
+            assert set(c.run(lambda: __import__("screening").__file__).values()) == {screening.__file__}
+        register, mapping = sample_paths(2026)
+        config = tmp_path / "config.toml"
+        config.write_text("chunk_size = 40\nsamples = 300\n")
+        common = ["run", str(register), "-m", str(mapping), "-c", str(config), "--no-history"]
+        local = _cli(*common, "-o", str(tmp_path / "local"))
+        remote = _cli(*common, "-o", str(tmp_path / "cluster"), "--dask", address)
+        assert local.exit_code == remote.exit_code == 1, remote.output  # the sample has rejected rows
+        for name in ("results.csv", "walls.csv", "problems.csv"):
+            assert (tmp_path / "local" / name).read_bytes() == (tmp_path / "cluster" / name).read_bytes(), name
+    finally:
+        for proc in (worker, scheduler):
+            proc.terminate()
+            try:
+                proc.wait(timeout=20)
+            except subprocess.TimeoutExpired:
+                proc.kill()
+        for log in logs:
+            log.close()
