@@ -17,6 +17,7 @@ from typer.testing import CliRunner
 from screening.cli import app
 from screening.outputs.webmap import (
     OVERTURNS_COLOUR,
+    PF_CHECK_DATA,
     PF_CLASSES,
     margin_class,
     margin_colours,
@@ -234,6 +235,24 @@ def test_probability_colours_contrast_with_the_land() -> None:
     for colour in pf_colours():
         assert _contrast(colour, "#F2EFE9") >= 3.0, colour
     assert len(set(pf_colours())) == len(pf_colours())
+
+
+def _lab(hex_colour: str) -> np.ndarray:
+    # CIE 1976 L*a*b* from sRGB (IEC 61966-2-1 transfer, D65 white), the standard definitions
+    c = np.array([int(hex_colour[i : i + 2], 16) / 255 for i in (1, 3, 5)])
+    c = np.where(c <= 0.04045, c / 12.92, ((c + 0.055) / 1.055) ** 2.4)
+    m = np.array([[0.4124, 0.3576, 0.1805], [0.2126, 0.7152, 0.0722], [0.0193, 0.1192, 0.9505]])
+    xyz = m @ c / np.array([0.95047, 1.0, 1.08883])
+    f = np.where(xyz > (6 / 29) ** 3, np.cbrt(xyz), xyz / (3 * (6 / 29) ** 2) + 4 / 29)
+    return np.array([116 * f[1] - 16, 500 * (f[0] - f[1]), 200 * (f[1] - f[2])])
+
+
+def test_check_the_data_stands_apart_from_every_probability_class() -> None:
+    # CIE76 colour difference: ΔE*ab above about 10 is plainly visible (common practice, no source)
+    other = [c for c in pf_colours() if c != PF_CHECK_DATA[0]]
+    for colour in other:
+        assert np.linalg.norm(_lab(PF_CHECK_DATA[0]) - _lab(colour)) > 25, colour
+    assert np.allclose(_lab("#FFFFFF"), [100, 0, 0], atol=0.05)  # the reference white
 
 
 def test_probability_classes_follow_p_failure() -> None:

@@ -60,7 +60,9 @@ PF_CLASSES: Sequence[tuple[float, str, str]] = (
     (0.5, "#684957", "1 in 10 to 1 in 2"),
     (np.inf, "#46353A", "over 1 in 2"),
 )
-PF_CHECK_DATA = (BAND_COLOURS["check_data"], "check the data first: the figures say it could not stand")
+PF_CHECK_DATA = ("#009988", "check the data first: the figures say it could not stand")
+"""Teal (Paul Tol's "vibrant" scheme, same note): a hue of its own beside the purple classes, where
+the bands view's grey for these walls was hard to tell from the darkest class."""
 PF_NOT_COMPUTED = ("#707070", "not computed")
 
 
