@@ -130,7 +130,14 @@ def dask_client(
         with distributed.Client(address, timeout=timeout, set_as_default=False) as client:
             yield client
         return
+    import dask
+
     with (
+        # Dask's nanny sets MALLOC_TRIM_THRESHOLD_=65536 in its workers, which turns off glibc's
+        # adaptive mmap threshold: every array of a chunk is then a fresh mmap and its pages are
+        # faulted in again, and the Monte Carlo ran 2.4x slower on the cluster than here
+        # (benchmarks/cluster.py). Unset for the workers we start; the README says how for others.
+        dask.config.set({"distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": None}),
         distributed.LocalCluster(
             n_workers=workers,
             threads_per_worker=1,
