@@ -542,7 +542,7 @@ def screen(register: pd.DataFrame, config: Config | None = None) -> pd.DataFrame
         warnings.warn(
             f"{errors['row'].nunique()} row(s) rejected: {listing}", RejectedRowsWarning, stacklevel=2
         )
-    return run.results[list(RESULT_COLUMNS)].reset_index(drop=True)
+    return run.results.reindex(columns=list(RESULT_COLUMNS)).reset_index(drop=True)
 
 
 __all__ = ["RESULT_COLUMNS", "Screening", "evaluate", "screen"]

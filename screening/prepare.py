@@ -101,7 +101,9 @@ class _Log:
                     "column": self.labels.get(column, column),
                     "value": shown.map(_show).to_numpy(),
                     "severity": severity,
-                    "message": message.loc[mask].to_numpy() if isinstance(message, pd.Series) else message,
+                    "message": message.reindex(hit.index).to_numpy()
+                    if isinstance(message, pd.Series)
+                    else message,
                 }
             )
         )
@@ -156,8 +158,25 @@ def _clean_text(series: pd.Series) -> pd.Series:
     return text.where(~missing)
 
 
+def _per_distinct(series: pd.Series, fn: Any) -> pd.Series:
+    """``fn`` (whole column to whole column, missing kept missing) worked out once per distinct
+    value where every value is text (a register holds few distinct materials or classes);
+    mixed columns (17 and 17.0 and True hash alike) go through ``fn`` cell by cell."""
+    kind = pd.api.types.infer_dtype(series, skipna=True)
+    if kind != "string" or len(series) < 64:
+        return fn(series)
+    codes, uniques = pd.factorize(series.to_numpy(dtype=object))
+    if len(uniques) > len(series) // 2:
+        return fn(series)
+    done = fn(pd.Series(uniques, dtype=object)).to_numpy(dtype=object)
+    values = np.where(codes >= 0, done[np.maximum(codes, 0)], np.nan)
+    return pd.Series(values, index=series.index, dtype=object)
+
+
 def _whole_numbers_as_shown(series: pd.Series) -> pd.Series:
     """A spreadsheet's number 17 is read as 17.0: as text it is "17", as the user sees it."""
+    if pd.api.types.infer_dtype(series, skipna=True) in ("string", "empty"):
+        return series
     values = series.to_numpy(dtype=object)
     floats = np.fromiter((isinstance(v, float) for v in values), dtype=bool, count=len(values))
     if not floats.any():
@@ -184,7 +203,9 @@ def cast(frame: pd.DataFrame, config: Config, log: _Log) -> pd.DataFrame:
         elif col in schema.CODED:
             allowed = schema.CODED[col] or tuple(config.consequence_weight)
             text = raw.where(~blank).astype(object)
-            code = _clean_text(text).str.lower().str.replace(" ", "_", regex=False)
+            code = _per_distinct(
+                text, lambda t: _clean_text(t).str.lower().str.replace(" ", "_", regex=False)
+            )
             bad = code.notna() & ~code.isin(allowed)
             log.problem(bad, col, f"expected one of {', '.join(allowed)}", values=raw)
             out[col] = code.where(~bad).astype(object)
@@ -193,7 +214,7 @@ def cast(frame: pd.DataFrame, config: Config, log: _Log) -> pd.DataFrame:
             log.problem(~blank & dates.isna(), col, "expected a date (YYYY-MM-DD)", values=raw)
             out[col] = dates
         else:
-            out[col] = _clean_text(raw.where(~blank).astype(object))
+            out[col] = _per_distinct(raw.where(~blank).astype(object), _clean_text)
     return out
 
 
@@ -246,7 +267,7 @@ def _refuse_text(frame: pd.DataFrame, log: _Log, test: Any, message: str) -> pd.
         if kind not in ("string", "mixed", "mixed-integer"):
             text = text.where(pd.Series([isinstance(v, str) for v in text.to_numpy()], index=text.index))
             text = text.astype(object).where(text.notna(), "")
-        hit = test(text).fillna(False).astype(bool)
+        hit = _per_distinct(text, test).fillna(False).astype(bool)
         if hit.any():
             log.problem(hit, col, message)
             out = out.copy() if out is frame else out
@@ -534,48 +555,57 @@ def _fill_water(w: pd.DataFrame, config: Config, log: _Log) -> None:
 
 
 def check_geometry(w: pd.DataFrame, log: _Log) -> None:
-    """Physical consistency once blanks are filled (method.md §1, §2, §5)."""
+    """Physical consistency once blanks are filled (method.md §1, §2, §5). The messages are
+    worded only for the rows they name."""
     back = w["base_width_m"] - w["front_batter_m"] - w["top_width_m"]
+    bad = w[back < -1e-9]
     log.problem(
         back < -1e-9,
         "base_width_m",
         _words(
             "base ",
-            _m(w["base_width_m"]),
+            _m(bad["base_width_m"]),
             " m narrower than top width ",
-            _m(w["top_width_m"]),
+            _m(bad["top_width_m"]),
             " m plus front batter ",
-            _m(w["front_batter_m"]),
+            _m(bad["front_batter_m"]),
             " m: the back face would overhang the heel (b < 0)",
         ),
     )
+    high = w["retained_height_m"] > w["height_m"] + 1e-9
+    bad = w[high]
     log.problem(
-        w["retained_height_m"] > w["height_m"] + 1e-9,
+        high,
         "retained_height_m",
         _words(
             "retained height ",
-            _m(w["retained_height_m"]),
+            _m(bad["retained_height_m"]),
             " m above the wall height ",
-            _m(w["height_m"]),
+            _m(bad["height_m"]),
             " m",
         ),
     )
+    wet = w["water_height_m"] > w["retained_height_m"] + 1e-9
+    bad = w[wet]
     log.problem(
-        w["water_height_m"] > w["retained_height_m"] + 1e-9,
+        wet,
         "water_height_m",
         _words(
             "water height ",
-            _m(w["water_height_m"]),
+            _m(bad["water_height_m"]),
             " m above the retained height ",
-            _m(w["retained_height_m"]),
+            _m(bad["retained_height_m"]),
             " m",
         ),
     )
     crack = w["crack_height_m"]
+    outside = crack.notna() & ((crack <= 0) | (crack >= w["height_m"]))
     log.problem(
-        crack.notna() & ((crack <= 0) | (crack >= w["height_m"])),
+        outside,
         "crack_height_m",
-        _words("expected a crack height above 0 and below the wall height ", _m(w["height_m"]), " m"),
+        _words(
+            "expected a crack height above 0 and below the wall height ", _m(w.loc[outside, "height_m"]), " m"
+        ),
     )
     log.problem(
         w["backfill_slope_deg"] >= w["soil_friction_deg"],
