@@ -324,8 +324,9 @@ def near_toe_words(limit_m: float) -> str:
     return f"resultant within {limit_m * 1000:g} mm of the toe"
 
 
-def _case_part(r: pd.DataFrame, words: str, near_toe_m: float) -> NDArray[np.object_]:
-    """One case's words where it fails; a bearing check with the resultant at the toe in words."""
+def _case_part(r: pd.DataFrame, near_toe_m: float) -> NDArray[np.object_]:
+    """One case's words where it fails (without the case's name); a bearing check with the
+    resultant at the toe in words."""
     util = r["utilisation"].to_numpy(dtype=float)
     check = _check_words(r)
     figure = " (utilisation " + _fmt(util, 2) + ")"
@@ -335,7 +336,7 @@ def _case_part(r: pd.DataFrame, words: str, near_toe_m: float) -> NDArray[np.obj
         )
         check = np.where(at_toe, f"the resultant is within {near_toe_m * 1000:g} mm of the toe", check)
         figure = np.where(at_toe, "", figure)
-    return _when(util > 1, words + check + figure)
+    return _when(util > 1, check + figure)
 
 
 def _suspect_part(walls: pd.DataFrame) -> NDArray[np.object_]:
@@ -364,16 +365,13 @@ def reasons(
     ``years_to_critical_lean``); ``by_case``
     the results of the ``surveyed`` and ``blocked`` cases, row for row with ``walls``.
     """
-    parts: list[NDArray[np.object_]] = []
-    for case, words in (("surveyed", "as surveyed "), ("blocked", "with drains blocked ")):
-        parts.append(_case_part(by_case[case], words, near_toe_m))
+    surveyed, blocked = (_case_part(by_case[case], near_toe_m) for case in ("surveyed", "blocked"))
     # say the blocked case only where it adds to the surveyed one
-    same = (parts[1] != "") & (
-        np.char.replace(parts[1].astype(str), "with drains blocked ", "")
-        == np.char.replace(parts[0].astype(str), "as surveyed ", "")
-    )
-    parts[1] = _when(~same, parts[1])
-    none_fail = (parts[0] == "") & (parts[1] == "")
+    none_fail = (surveyed == "") & (blocked == "")
+    parts = [
+        _when(surveyed != "", "as surveyed " + surveyed),
+        _when((blocked != "") & (blocked != surveyed), "with drains blocked " + blocked),
+    ]
     if "p_failure" in by_case["surveyed"] and "data_inconsistent" in walls:
         # with samples on the probabilities take the place of the utilisations (method.md §13)
         parts = [probability_parts(walls, by_case)]
@@ -395,9 +393,11 @@ def reasons(
     parts.append(_when(np.isfinite(crack), "crack at " + _fmt(crack, 1) + " m"))
     below = np.char.replace(walls["consequence"].to_numpy(dtype=str), "_", " ").astype(object)
     parts.append(below + " below, " + _fmt(walls["height_m"], 1) + " m high")
-    text = np.full(len(walls), "", dtype=object)
     passes = _when(none_fail, "passes every check in every case")
-    for part in (_suspect_part(walls), passes, *parts):  # a data warning is said first
-        text = text + np.where((text != "") & (part != ""), "; ", "") + part
-    s = pd.Series(text, dtype=object)
-    return (s.str.slice(0, 1).str.upper() + s.str.slice(1)).to_numpy(dtype=object)
+    return _joined([_suspect_part(walls), passes, *parts])  # a data warning is said first
+
+
+def _joined(parts: list[NDArray[np.object_]]) -> NDArray[np.object_]:
+    """Row by row, the non-empty parts joined by "; ", the first letter a capital."""
+    lines = ["; ".join(filter(None, row)) for row in zip(*parts, strict=True)]
+    return np.array([t[:1].upper() + t[1:] for t in lines], dtype=object).reshape(-1)
