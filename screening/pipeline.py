@@ -17,6 +17,7 @@ import pandas as pd
 from numpy.typing import NDArray
 
 from screening import priority
+from screening.assumed import Assumptions
 from screening.config import CASES, Config
 from screening.core import critical
 from screening.core.engine import BEARING_METHODS, DERIVED_INPUTS, ENGINE_INPUTS, GOVERNING, run_cases
@@ -457,7 +458,7 @@ def split_prepared(prepared: Prepared, size: int) -> list[Prepared]:
             walls=prepared.walls.iloc[start : start + size].reset_index(drop=True),
             inputs={k: v[start : start + size] for k, v in prepared.inputs.items()},
             problems=empty,
-            assumptions=prepared.assumptions.iloc[:0],
+            assumptions=Assumptions.none(),
             earlier_surveys=prepared.earlier_surveys.iloc[:0],
         )
         for start in range(0, n, size)

@@ -16,11 +16,11 @@ import numpy as np
 import pandas as pd
 
 from screening import schema
+from screening.assumed import Assumptions, Recorder
 from screening.config import DIMENSION_SOURCES, Config
 from screening.core.engine import ENGINE_INPUTS
 
 PROBLEM_COLUMNS = ("row", "wall_id", "column", "value", "severity", "message")
-ASSUMPTION_COLUMNS = ("wall_id", "row", "column", "value", "source")
 
 
 @dataclass(frozen=True)
@@ -35,8 +35,8 @@ class Prepared:
         The engine's input columns for ``walls``.
     problems : pandas.DataFrame
         Errors and warnings, one per row and column.
-    assumptions : pandas.DataFrame
-        Every default used, per wall.
+    assumptions : Assumptions
+        Every default used, per wall (:mod:`screening.assumed`).
     n_read : int
         Rows read from the register.
     earlier_surveys : pandas.DataFrame
@@ -47,7 +47,7 @@ class Prepared:
     walls: pd.DataFrame
     inputs: dict[str, np.ndarray]
     problems: pd.DataFrame
-    assumptions: pd.DataFrame
+    assumptions: Assumptions
     n_read: int
     earlier_surveys: pd.DataFrame
 
@@ -66,7 +66,7 @@ class _Log:
         self.shown = shown if shown is not None else frame.copy()
         self.flagged: dict[str, pd.Series] = {}
         self.problems: list[pd.DataFrame] = []
-        self.assumptions: list[pd.DataFrame] = []
+        self.assumptions = Recorder(len(frame))
 
     def problem(
         self,
@@ -112,22 +112,8 @@ class _Log:
         self, mask: pd.Series, column: str, value: pd.Series | float | str, source: pd.Series | str
     ) -> None:
         mask = mask.fillna(False).astype(bool)
-        if not mask.any():
-            return
-        hit = self.frame.loc[mask]
-        val = value.loc[mask] if isinstance(value, pd.Series) else pd.Series(value, index=hit.index)
-        src = source.loc[mask] if isinstance(source, pd.Series) else pd.Series(source, index=hit.index)
-        self.assumptions.append(
-            pd.DataFrame(
-                {
-                    "wall_id": hit["wall_id"].astype(object).to_numpy(),
-                    "row": hit["row"].to_numpy(),
-                    "column": column,
-                    "value": val.astype(object).to_numpy(),
-                    "source": src.astype(object).to_numpy(),
-                }
-            )
-        )
+        if mask.any():
+            self.assumptions.add(column, mask.to_numpy(), value, source)
 
 
 def _show(value: object) -> str:
@@ -688,9 +674,7 @@ def prepare(
     latest = latest.drop_duplicates("wall_id", keep="last").sort_values("row")
     earlier = accepted[~accepted["row"].isin(latest["row"])].reset_index(drop=True)
     accepted = latest.reset_index(drop=True)
-    assumptions = _concat(log.assumptions, ASSUMPTION_COLUMNS)
-    assumptions = assumptions[assumptions["row"].isin(set(accepted["row"]))]
-    assumptions = assumptions.sort_values(["row"], kind="stable").reset_index(drop=True)
+    assumptions = log.assumptions.build(filled["wall_id"], filled["row"]).rows(accepted["row"])
     inputs = {c: accepted[c].to_numpy(dtype=float) for c in ENGINE_INPUTS}
     return Prepared(accepted, inputs, problems, assumptions, len(frame), earlier)
 
