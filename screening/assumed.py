@@ -139,36 +139,38 @@ class Recorder:
         self.texts: dict[str, list[str]] = {}
 
     def add(self, column: str, mask: np.ndarray, value: object, source: object) -> None:
+        hit = np.flatnonzero(mask)
         if column not in self.values:
-            self.values[column] = np.full(self.n, np.nan, dtype=object)
+            numeric = _is_number(value)
+            self.values[column] = np.full(self.n, np.nan) if numeric else np.full(self.n, None, dtype=object)
             self.codes[column] = np.zeros(self.n, dtype=np.int64)
             self.texts[column] = []
-        hit = np.flatnonzero(mask)
-        if (self.codes[column][hit] > 0).any():
+        values, codes = self.values[column], self.codes[column]
+        if (codes[hit] > 0).any():
             raise ValueError(f"internal: two defaults for {column} on one wall")
-        self.values[column][hit] = (
-            value.to_numpy(dtype=object)[hit] if isinstance(value, pd.Series) else value
-        )
-        src = (
-            source.to_numpy(dtype=object)[hit] if isinstance(source, pd.Series) else np.full(len(hit), source)
-        )
-        codes, uniques = pd.factorize(src.astype(str))
+        if isinstance(value, pd.Series):
+            values[hit] = value.to_numpy(dtype=values.dtype)[hit]
+        else:
+            values[hit] = value
+        if isinstance(source, pd.Series):
+            found, uniques = pd.factorize(source.to_numpy(dtype=object)[hit])
+            texts = [str(t) for t in uniques]
+        else:
+            found, texts = np.zeros(len(hit), dtype=np.int64), [str(source)]
         known = self.texts[column]
-        number = {t: i + 1 for i, t in enumerate(known)}
-        for text in uniques:
-            if text not in number:
-                known.append(str(text))
-                number[text] = len(known)
-        self.codes[column][hit] = np.asarray([number[t] for t in uniques], dtype=np.int64)[codes]
+        for text in texts:
+            if text not in known:
+                known.append(text)
+        number = np.asarray([known.index(t) + 1 for t in texts], dtype=np.int64)
+        codes[hit] = number[found]
 
     def build(self, wall_id: pd.Series, row: pd.Series) -> Assumptions:
         """Every wall of the register (rows in its order); :meth:`Assumptions.rows` picks the
         screened ones."""
         table = pd.DataFrame({"wall_id": wall_id.astype(object).to_numpy(), "row": row.to_numpy()})
-        codes = pd.DataFrame(index=table.index)
-        for col, values in self.values.items():
-            table[col] = _typed(values, self.codes[col] > 0)
-            codes[col] = self.codes[col]
+        columns = {col: pd.Series(values, dtype=values.dtype) for col, values in self.values.items()}
+        table = pd.concat([table, pd.DataFrame(columns, index=table.index)], axis=1)
+        codes = pd.DataFrame(self.codes, index=table.index)
         sources = pd.DataFrame(
             [(col, i + 1, text) for col, texts in self.texts.items() for i, text in enumerate(texts)],
             columns=list(SOURCE_COLUMNS[:3]),
@@ -176,16 +178,11 @@ class Recorder:
         return _counted(table, codes, sources)
 
 
-def _typed(values: np.ndarray, used: np.ndarray) -> pd.Series:
-    """A column of numbers as floats, of text as text (missing where not assumed)."""
-    numbers = pd.to_numeric(pd.Series(values[used]), errors="coerce")
-    if numbers.notna().all() and not any(isinstance(v, str) for v in values[used]):
-        out = np.full(len(values), np.nan)
-        out[used] = numbers.to_numpy(dtype=float)
-        return pd.Series(out)
-    out_text = values.copy()
-    out_text[~used] = None
-    return pd.Series(out_text, dtype=object)
+def _is_number(value: object) -> bool:
+    """A default's value is a number (a float column) or text (an object column)."""
+    if isinstance(value, pd.Series):
+        return pd.api.types.is_numeric_dtype(value) and not pd.api.types.is_bool_dtype(value)
+    return isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, bool)
 
 
 def _counted(table: pd.DataFrame, codes: pd.DataFrame, sources: pd.DataFrame) -> Assumptions:

@@ -8,6 +8,7 @@ recorded per wall with its source (method.md §7).
 
 from __future__ import annotations
 
+import re
 from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
@@ -127,9 +128,13 @@ def _blank(series: pd.Series) -> pd.Series:
     missing = series.isna()
     if pd.api.types.is_numeric_dtype(series) or pd.api.types.is_bool_dtype(series):
         return missing
-    values = series.to_numpy(dtype=object)
-    text = np.where(missing.to_numpy(), "", values).astype(str)
-    return missing | pd.Series(np.char.str_len(np.char.strip(text)) == 0, index=series.index)
+    return missing | _per_distinct(series.where(~missing), _white).fillna(False).astype(bool)
+
+
+def _white(series: pd.Series) -> pd.Series:
+    """True where the text is only white space (missing cells are not asked)."""
+    text = np.where(series.isna().to_numpy(), "x", series.to_numpy(dtype=object)).astype(str)
+    return pd.Series(np.char.str_len(np.char.strip(text)) == 0, index=series.index)
 
 
 def _clean_text(series: pd.Series) -> pd.Series:
@@ -151,7 +156,10 @@ def _per_distinct(series: pd.Series, fn: Any) -> pd.Series:
     kind = pd.api.types.infer_dtype(series, skipna=True)
     if kind != "string" or len(series) < 64:
         return fn(series)
-    codes, uniques = pd.factorize(series.to_numpy(dtype=object))
+    values = series.to_numpy(dtype=object)
+    if len(set(values[:1000].tolist())) > 500:  # mostly distinct (ids, names): no gain
+        return fn(series)
+    codes, uniques = pd.factorize(values)
     if len(uniques) > len(series) // 2:
         return fn(series)
     done = fn(pd.Series(uniques, dtype=object)).to_numpy(dtype=object)
@@ -226,6 +234,7 @@ def refuse_error_cells(frame: pd.DataFrame, log: _Log) -> pd.DataFrame:
         log,
         lambda text: text.str.strip().str.fullmatch(ERROR_CELL),
         "a spreadsheet error cell: the formula could not be calculated; fix it in the register",
+        lambda joined: "#" in joined,
     )
 
 
@@ -236,12 +245,14 @@ def refuse_nul(frame: pd.DataFrame, log: _Log) -> pd.DataFrame:
         log,
         lambda text: text.str.contains(CONTROL, regex=True),
         "a control character (e.g. a NUL byte or an escape) in the cell: expected plain text",
+        lambda joined: re.search(CONTROL, joined) is not None,
     )
 
 
-def _refuse_text(frame: pd.DataFrame, log: _Log, test: Any, message: str) -> pd.DataFrame:
+def _refuse_text(frame: pd.DataFrame, log: _Log, test: Any, message: str, maybe: Any) -> pd.DataFrame:
     """Log the text cells of the canonical columns where ``test`` holds; blank them so that they
-    are not reported twice (the row is rejected all the same)."""
+    are not reported twice (the row is rejected all the same). ``maybe`` of a column's text cells
+    joined by line breaks is False where no cell can hold a hit (one search of the whole column)."""
     out = frame
     for col in schema.COLUMNS:
         if col not in frame or frame[col].dtype.kind in "fiubcmM":
@@ -253,6 +264,8 @@ def _refuse_text(frame: pd.DataFrame, log: _Log, test: Any, message: str) -> pd.
         if kind not in ("string", "mixed", "mixed-integer"):
             text = text.where(pd.Series([isinstance(v, str) for v in text.to_numpy()], index=text.index))
             text = text.astype(object).where(text.notna(), "")
+        if not maybe("\n".join(v for v in text.to_numpy() if isinstance(v, str))):
+            continue
         hit = _per_distinct(text, test).fillna(False).astype(bool)
         if hit.any():
             log.problem(hit, col, message)
@@ -491,7 +504,9 @@ def _fill_foundation(w: pd.DataFrame, config: Config, log: _Log) -> None:
     ):
         blank = w[col].isna()
         values = foundation.map(dict(table)).astype(float)
-        log.assume(blank, col, values, config.foundation_source + ", " + foundation)
+        log.assume(
+            blank, col, values, _per_distinct(foundation, lambda f: config.foundation_source + ", " + f)
+        )
         w[col] = w[col].fillna(values)
 
 
@@ -527,16 +542,11 @@ def _fill_water(w: pd.DataFrame, config: Config, log: _Log) -> None:
     drainage = w["drainage"].fillna("unknown")
     fraction = drainage.map(dict(config.drainage_water_fraction)).astype(float)
     surveyed = w["water_height_m"].fillna(fraction * w["retained_height_m"])
-    log.assume(
-        no_water,
-        "surveyed water_height_m",
-        surveyed,
-        "drainage '"
-        + drainage
-        + "': "
-        + fraction.map("{:g}".format)
-        + " × retained height (config drainage_water_fraction)",
-    )
+    source = {
+        d: f"drainage '{d}': {f:g} × retained height (config drainage_water_fraction)"
+        for d, f in config.drainage_water_fraction.items()
+    }
+    log.assume(no_water, "surveyed water_height_m", surveyed, drainage.map(source))
     w["surveyed_water_height_m"] = surveyed
 
 
