@@ -464,12 +464,14 @@ def _write_all(
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     run = job.screening
+    from screening.assumed import write_assumptions
+
     step("CSV files")
     outputs = {
         "results": write_csv(run.results.reindex(columns=list(RESULT_COLUMNS)), out / "results.csv"),
         "walls": write_csv(job.walls, out / "walls.csv"),
         "problems": write_csv(run.problems, out / "problems.csv"),
-        "assumptions": write_csv(run.prepared.assumptions, out / "assumptions.csv"),
+        **write_assumptions(run.prepared.assumptions, out),
     }
     if job.history is not None:
         step("comparison with the previous run")

@@ -17,6 +17,7 @@ import pandas as pd
 from numpy.typing import NDArray
 
 from screening import priority
+from screening.assumed import Assumptions
 from screening.config import CASES, Config
 from screening.core import critical
 from screening.core.engine import BEARING_METHODS, DERIVED_INPUTS, ENGINE_INPUTS, GOVERNING, run_cases
@@ -250,37 +251,47 @@ def critical_figures(prepared: Prepared, config: Config, progress: Progress | No
     )
 
 
+def case_positions(results: pd.DataFrame) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+    """The walls of long results (``_wall``, ascending) and, per wall and case (in the order of
+    :data:`CASES`), the position of its row in ``results``: numpy indexing in place of pivots."""
+    wall = results["_wall"].to_numpy(dtype=np.int64)
+    case = pd.Categorical(results["case"], categories=list(CASES)).codes.astype(np.int64)
+    walls, inverse = np.unique(wall, return_inverse=True)
+    pos = np.full((len(walls), len(CASES)), -1, dtype=np.int64)
+    pos[inverse.reshape(-1), case] = np.arange(len(results))
+    if (pos < 0).any() or (case < 0).any():
+        raise ValueError("internal: the results lack a case of some wall (each wall has every case)")
+    return walls, pos
+
+
 def summarise_walls(results: pd.DataFrame, walls: pd.DataFrame) -> pd.DataFrame:
     """One row per wall: worst case, governing check, margin, flags and rank.
 
     The worst case is the case with the largest utilisation; rank 1 is the
     least margin.
     """
-    wide = results.pivot(index="_wall", columns="case", values="utilisation")[list(CASES)]
-    util = wide.to_numpy()
+    index, pos = case_positions(results)
+    util = results["utilisation"].to_numpy(dtype=float)[pos]
     worst_idx = np.argmax(np.where(np.isnan(util), -np.inf, util), axis=1)
-    worst_case = np.asarray(CASES)[worst_idx]
-    by_key = results.set_index(["_wall", "case"])
-    keys = list(zip(wide.index, worst_case, strict=True))
-    worst = by_key.loc[keys]
-    outside = results.assign(flag=~results["in_middle_third"]).groupby("_wall")["flag"].any()
-    over = results.assign(flag=results["bearing_utilisation"] > 1).groupby("_wall")["flag"].any()
+    worst = pos[np.arange(len(pos)), worst_idx]
+    outside = (~results["in_middle_third"].to_numpy(dtype=bool))[pos].any(axis=1)
+    over = (results["bearing_utilisation"].to_numpy(dtype=float) > 1)[pos].any(axis=1)
     summary = pd.DataFrame(
         {
-            "wall_id": walls["wall_id"].to_numpy()[wide.index],
-            "name": walls["name"].to_numpy()[wide.index],
-            "worst_case": worst_case,
-            "governing_check": worst["governing_check"].to_numpy(),
-            "utilisation": worst["utilisation"].to_numpy(),
-            "margin": worst["margin"].to_numpy(),
-            "state": worst["state"].to_numpy(),
+            "wall_id": walls["wall_id"].to_numpy()[index],
+            "name": walls["name"].to_numpy()[index],
+            "worst_case": np.asarray(CASES)[worst_idx],
+            "governing_check": results["governing_check"].to_numpy()[worst],
+            "utilisation": util[np.arange(len(pos)), worst_idx],
+            "margin": results["margin"].to_numpy()[worst],
+            "state": results["state"].to_numpy()[worst],
         },
-        index=wide.index,
+        index=pd.Index(index, name="_wall"),
     )
-    for case in CASES:
-        summary[f"utilisation_{case}"] = wide[case].to_numpy()
-    summary["outside_middle_third"] = outside.reindex(wide.index).to_numpy()
-    summary["over_allowable_bearing"] = over.reindex(wide.index).to_numpy()
+    for c, case in enumerate(CASES):
+        summary[f"utilisation_{case}"] = util[:, c]
+    summary["outside_middle_third"] = outside
+    summary["over_allowable_bearing"] = over
     return summary
 
 
@@ -325,18 +336,17 @@ def add_priority(
         out["priority_band"] = priority.band_with_data_check(
             out["priority_score"], out["data_inconsistent"], s
         )
-    by_case = {case: results[results["case"] == case].set_index("_wall").loc[summary.index] for case in CASES}
+    index, pos = case_positions(results)
+    rows = pos[np.searchsorted(index, summary.index.to_numpy())]
+    by_case = {case: results.iloc[rows[:, c]].set_axis(summary.index) for c, case in enumerate(CASES)}
     out["reason"] = priority.reasons(inputs, by_case, near_toe_m=config.resultant_near_toe_m)
     for col in (*INPUT_COLUMNS, "lean_rate_deg_per_year", "lean_rate_mm_per_year", "lean_growing"):
         out[col] = inputs[col].to_numpy()
     for col in FLAG_COLUMNS:
         if col in inputs:
             out[col] = inputs[col].to_numpy()
-    out["_far"] = (
-        results.set_index(["wall_id", "case"])["middle_third_utilisation"]
-        .reindex(list(zip(out["wall_id"], out["worst_case"], strict=True)))
-        .to_numpy()
-    )
+    worst = pd.Categorical(out["worst_case"], categories=list(CASES)).codes
+    out["_far"] = results["middle_third_utilisation"].to_numpy()[rows[np.arange(len(out)), worst]]
     out = out.sort_values(["priority_score", "margin", "_far"], ascending=[False, True, False], kind="stable")
     out["rank"] = np.arange(1, len(out) + 1)
     return out.drop(columns="_far").reset_index(drop=True)
@@ -448,7 +458,7 @@ def split_prepared(prepared: Prepared, size: int) -> list[Prepared]:
             walls=prepared.walls.iloc[start : start + size].reset_index(drop=True),
             inputs={k: v[start : start + size] for k, v in prepared.inputs.items()},
             problems=empty,
-            assumptions=prepared.assumptions.iloc[:0],
+            assumptions=Assumptions.none(),
             earlier_surveys=prepared.earlier_surveys.iloc[:0],
         )
         for start in range(0, n, size)

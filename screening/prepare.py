@@ -8,6 +8,7 @@ recorded per wall with its source (method.md §7).
 
 from __future__ import annotations
 
+import re
 from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
@@ -16,11 +17,11 @@ import numpy as np
 import pandas as pd
 
 from screening import schema
+from screening.assumed import Assumptions, Recorder
 from screening.config import DIMENSION_SOURCES, Config
 from screening.core.engine import ENGINE_INPUTS
 
 PROBLEM_COLUMNS = ("row", "wall_id", "column", "value", "severity", "message")
-ASSUMPTION_COLUMNS = ("wall_id", "row", "column", "value", "source")
 
 
 @dataclass(frozen=True)
@@ -35,8 +36,8 @@ class Prepared:
         The engine's input columns for ``walls``.
     problems : pandas.DataFrame
         Errors and warnings, one per row and column.
-    assumptions : pandas.DataFrame
-        Every default used, per wall.
+    assumptions : Assumptions
+        Every default used, per wall (:mod:`screening.assumed`).
     n_read : int
         Rows read from the register.
     earlier_surveys : pandas.DataFrame
@@ -47,7 +48,7 @@ class Prepared:
     walls: pd.DataFrame
     inputs: dict[str, np.ndarray]
     problems: pd.DataFrame
-    assumptions: pd.DataFrame
+    assumptions: Assumptions
     n_read: int
     earlier_surveys: pd.DataFrame
 
@@ -66,7 +67,7 @@ class _Log:
         self.shown = shown if shown is not None else frame.copy()
         self.flagged: dict[str, pd.Series] = {}
         self.problems: list[pd.DataFrame] = []
-        self.assumptions: list[pd.DataFrame] = []
+        self.assumptions = Recorder(len(frame))
 
     def problem(
         self,
@@ -101,7 +102,9 @@ class _Log:
                     "column": self.labels.get(column, column),
                     "value": shown.map(_show).to_numpy(),
                     "severity": severity,
-                    "message": message.loc[mask].to_numpy() if isinstance(message, pd.Series) else message,
+                    "message": message.reindex(hit.index).to_numpy()
+                    if isinstance(message, pd.Series)
+                    else message,
                 }
             )
         )
@@ -110,22 +113,8 @@ class _Log:
         self, mask: pd.Series, column: str, value: pd.Series | float | str, source: pd.Series | str
     ) -> None:
         mask = mask.fillna(False).astype(bool)
-        if not mask.any():
-            return
-        hit = self.frame.loc[mask]
-        val = value.loc[mask] if isinstance(value, pd.Series) else pd.Series(value, index=hit.index)
-        src = source.loc[mask] if isinstance(source, pd.Series) else pd.Series(source, index=hit.index)
-        self.assumptions.append(
-            pd.DataFrame(
-                {
-                    "wall_id": hit["wall_id"].astype(object).to_numpy(),
-                    "row": hit["row"].to_numpy(),
-                    "column": column,
-                    "value": val.astype(object).to_numpy(),
-                    "source": src.astype(object).to_numpy(),
-                }
-            )
-        )
+        if mask.any():
+            self.assumptions.add(column, mask.to_numpy(), value, source)
 
 
 def _show(value: object) -> str:
@@ -139,9 +128,13 @@ def _blank(series: pd.Series) -> pd.Series:
     missing = series.isna()
     if pd.api.types.is_numeric_dtype(series) or pd.api.types.is_bool_dtype(series):
         return missing
-    values = series.to_numpy(dtype=object)
-    text = np.where(missing.to_numpy(), "", values).astype(str)
-    return missing | pd.Series(np.char.str_len(np.char.strip(text)) == 0, index=series.index)
+    return missing | _per_distinct(series.where(~missing), _white).fillna(False).astype(bool)
+
+
+def _white(series: pd.Series) -> pd.Series:
+    """True where the text is only white space (missing cells are not asked)."""
+    text = np.where(series.isna().to_numpy(), "x", series.to_numpy(dtype=object)).astype(str)
+    return pd.Series(np.char.str_len(np.char.strip(text)) == 0, index=series.index)
 
 
 def _clean_text(series: pd.Series) -> pd.Series:
@@ -156,8 +149,28 @@ def _clean_text(series: pd.Series) -> pd.Series:
     return text.where(~missing)
 
 
+def _per_distinct(series: pd.Series, fn: Any) -> pd.Series:
+    """``fn`` (whole column to whole column, missing kept missing) worked out once per distinct
+    value where every value is text (a register holds few distinct materials or classes);
+    mixed columns (17 and 17.0 and True hash alike) go through ``fn`` cell by cell."""
+    kind = pd.api.types.infer_dtype(series, skipna=True)
+    if kind != "string" or len(series) < 64:
+        return fn(series)
+    values = series.to_numpy(dtype=object)
+    if len(set(values[:1000].tolist())) > 500:  # mostly distinct (ids, names): no gain
+        return fn(series)
+    codes, uniques = pd.factorize(values)
+    if len(uniques) > len(series) // 2:
+        return fn(series)
+    done = fn(pd.Series(uniques, dtype=object)).to_numpy(dtype=object)
+    values = np.where(codes >= 0, done[np.maximum(codes, 0)], np.nan)
+    return pd.Series(values, index=series.index, dtype=object)
+
+
 def _whole_numbers_as_shown(series: pd.Series) -> pd.Series:
     """A spreadsheet's number 17 is read as 17.0: as text it is "17", as the user sees it."""
+    if pd.api.types.infer_dtype(series, skipna=True) in ("string", "empty"):
+        return series
     values = series.to_numpy(dtype=object)
     floats = np.fromiter((isinstance(v, float) for v in values), dtype=bool, count=len(values))
     if not floats.any():
@@ -184,7 +197,9 @@ def cast(frame: pd.DataFrame, config: Config, log: _Log) -> pd.DataFrame:
         elif col in schema.CODED:
             allowed = schema.CODED[col] or tuple(config.consequence_weight)
             text = raw.where(~blank).astype(object)
-            code = _clean_text(text).str.lower().str.replace(" ", "_", regex=False)
+            code = _per_distinct(
+                text, lambda t: _clean_text(t).str.lower().str.replace(" ", "_", regex=False)
+            )
             bad = code.notna() & ~code.isin(allowed)
             log.problem(bad, col, f"expected one of {', '.join(allowed)}", values=raw)
             out[col] = code.where(~bad).astype(object)
@@ -193,7 +208,7 @@ def cast(frame: pd.DataFrame, config: Config, log: _Log) -> pd.DataFrame:
             log.problem(~blank & dates.isna(), col, "expected a date (YYYY-MM-DD)", values=raw)
             out[col] = dates
         else:
-            out[col] = _clean_text(raw.where(~blank).astype(object))
+            out[col] = _per_distinct(raw.where(~blank).astype(object), _clean_text)
     return out
 
 
@@ -219,6 +234,7 @@ def refuse_error_cells(frame: pd.DataFrame, log: _Log) -> pd.DataFrame:
         log,
         lambda text: text.str.strip().str.fullmatch(ERROR_CELL),
         "a spreadsheet error cell: the formula could not be calculated; fix it in the register",
+        lambda joined: "#" in joined,
     )
 
 
@@ -229,12 +245,14 @@ def refuse_nul(frame: pd.DataFrame, log: _Log) -> pd.DataFrame:
         log,
         lambda text: text.str.contains(CONTROL, regex=True),
         "a control character (e.g. a NUL byte or an escape) in the cell: expected plain text",
+        lambda joined: re.search(CONTROL, joined) is not None,
     )
 
 
-def _refuse_text(frame: pd.DataFrame, log: _Log, test: Any, message: str) -> pd.DataFrame:
+def _refuse_text(frame: pd.DataFrame, log: _Log, test: Any, message: str, maybe: Any) -> pd.DataFrame:
     """Log the text cells of the canonical columns where ``test`` holds; blank them so that they
-    are not reported twice (the row is rejected all the same)."""
+    are not reported twice (the row is rejected all the same). ``maybe`` of a column's text cells
+    joined by line breaks is False where no cell can hold a hit (one search of the whole column)."""
     out = frame
     for col in schema.COLUMNS:
         if col not in frame or frame[col].dtype.kind in "fiubcmM":
@@ -246,7 +264,9 @@ def _refuse_text(frame: pd.DataFrame, log: _Log, test: Any, message: str) -> pd.
         if kind not in ("string", "mixed", "mixed-integer"):
             text = text.where(pd.Series([isinstance(v, str) for v in text.to_numpy()], index=text.index))
             text = text.astype(object).where(text.notna(), "")
-        hit = test(text).fillna(False).astype(bool)
+        if not maybe("\n".join(v for v in text.to_numpy() if isinstance(v, str))):
+            continue
+        hit = _per_distinct(text, test).fillna(False).astype(bool)
         if hit.any():
             log.problem(hit, col, message)
             out = out.copy() if out is frame else out
@@ -484,7 +504,9 @@ def _fill_foundation(w: pd.DataFrame, config: Config, log: _Log) -> None:
     ):
         blank = w[col].isna()
         values = foundation.map(dict(table)).astype(float)
-        log.assume(blank, col, values, config.foundation_source + ", " + foundation)
+        log.assume(
+            blank, col, values, _per_distinct(foundation, lambda f: config.foundation_source + ", " + f)
+        )
         w[col] = w[col].fillna(values)
 
 
@@ -520,62 +542,66 @@ def _fill_water(w: pd.DataFrame, config: Config, log: _Log) -> None:
     drainage = w["drainage"].fillna("unknown")
     fraction = drainage.map(dict(config.drainage_water_fraction)).astype(float)
     surveyed = w["water_height_m"].fillna(fraction * w["retained_height_m"])
-    log.assume(
-        no_water,
-        "surveyed water_height_m",
-        surveyed,
-        "drainage '"
-        + drainage
-        + "': "
-        + fraction.map("{:g}".format)
-        + " × retained height (config drainage_water_fraction)",
-    )
+    source = {
+        d: f"drainage '{d}': {f:g} × retained height (config drainage_water_fraction)"
+        for d, f in config.drainage_water_fraction.items()
+    }
+    log.assume(no_water, "surveyed water_height_m", surveyed, drainage.map(source))
     w["surveyed_water_height_m"] = surveyed
 
 
 def check_geometry(w: pd.DataFrame, log: _Log) -> None:
-    """Physical consistency once blanks are filled (method.md §1, §2, §5)."""
+    """Physical consistency once blanks are filled (method.md §1, §2, §5). The messages are
+    worded only for the rows they name."""
     back = w["base_width_m"] - w["front_batter_m"] - w["top_width_m"]
+    bad = w[back < -1e-9]
     log.problem(
         back < -1e-9,
         "base_width_m",
         _words(
             "base ",
-            _m(w["base_width_m"]),
+            _m(bad["base_width_m"]),
             " m narrower than top width ",
-            _m(w["top_width_m"]),
+            _m(bad["top_width_m"]),
             " m plus front batter ",
-            _m(w["front_batter_m"]),
+            _m(bad["front_batter_m"]),
             " m: the back face would overhang the heel (b < 0)",
         ),
     )
+    high = w["retained_height_m"] > w["height_m"] + 1e-9
+    bad = w[high]
     log.problem(
-        w["retained_height_m"] > w["height_m"] + 1e-9,
+        high,
         "retained_height_m",
         _words(
             "retained height ",
-            _m(w["retained_height_m"]),
+            _m(bad["retained_height_m"]),
             " m above the wall height ",
-            _m(w["height_m"]),
+            _m(bad["height_m"]),
             " m",
         ),
     )
+    wet = w["water_height_m"] > w["retained_height_m"] + 1e-9
+    bad = w[wet]
     log.problem(
-        w["water_height_m"] > w["retained_height_m"] + 1e-9,
+        wet,
         "water_height_m",
         _words(
             "water height ",
-            _m(w["water_height_m"]),
+            _m(bad["water_height_m"]),
             " m above the retained height ",
-            _m(w["retained_height_m"]),
+            _m(bad["retained_height_m"]),
             " m",
         ),
     )
     crack = w["crack_height_m"]
+    outside = crack.notna() & ((crack <= 0) | (crack >= w["height_m"]))
     log.problem(
-        crack.notna() & ((crack <= 0) | (crack >= w["height_m"])),
+        outside,
         "crack_height_m",
-        _words("expected a crack height above 0 and below the wall height ", _m(w["height_m"]), " m"),
+        _words(
+            "expected a crack height above 0 and below the wall height ", _m(w.loc[outside, "height_m"]), " m"
+        ),
     )
     log.problem(
         w["backfill_slope_deg"] >= w["soil_friction_deg"],
@@ -658,9 +684,7 @@ def prepare(
     latest = latest.drop_duplicates("wall_id", keep="last").sort_values("row")
     earlier = accepted[~accepted["row"].isin(latest["row"])].reset_index(drop=True)
     accepted = latest.reset_index(drop=True)
-    assumptions = _concat(log.assumptions, ASSUMPTION_COLUMNS)
-    assumptions = assumptions[assumptions["row"].isin(set(accepted["row"]))]
-    assumptions = assumptions.sort_values(["row"], kind="stable").reset_index(drop=True)
+    assumptions = log.assumptions.build(filled["wall_id"], filled["row"]).rows(accepted["row"])
     inputs = {c: accepted[c].to_numpy(dtype=float) for c in ENGINE_INPUTS}
     return Prepared(accepted, inputs, problems, assumptions, len(frame), earlier)
 

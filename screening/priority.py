@@ -24,7 +24,7 @@ configurable thresholds.
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from types import MappingProxyType
 
@@ -261,6 +261,17 @@ def _when(mask: ArrayLike, text: NDArray[np.object_] | str) -> NDArray[np.object
     return np.where(np.asarray(mask, dtype=bool), text, "").astype(object)
 
 
+def _only(mask: ArrayLike, build: Callable[[NDArray[np.intp]], NDArray[np.object_]]) -> NDArray[np.object_]:
+    """Text where ``mask`` holds, built only for those rows (``build`` gets their positions); ''
+    elsewhere. Most walls pass most checks: their words need not be assembled."""
+    where = np.asarray(mask, dtype=bool)
+    out = np.full(where.shape, "", dtype=object)
+    at = np.flatnonzero(where)
+    if at.size:
+        out[at] = build(at)
+    return out
+
+
 LEAN_CAUTION = "a projection, not a prediction: drystone can collapse with little warning movement"
 """Said beside every years-to-critical-lean figure (method.md §9; Powrie et al., Géotechnique
 52(6), 2002: unweathered drystone can collapse with little warning movement)."""
@@ -283,16 +294,21 @@ def _critical_parts(walls: pd.DataFrame) -> tuple[NDArray[np.object_], NDArray[n
     if "critical_water_height_m" in walls:
         h = walls["critical_water_height_m"].to_numpy(dtype=float)
         top = walls["retained_height_m"].to_numpy(dtype=float)
-        text = "fails once water rises above " + _metres(h) + " m of " + _metres(top) + " m"
-        water = _when(np.isfinite(h) & (h > 0), text)
+        water = _only(
+            np.isfinite(h) & (h > 0),
+            lambda i: "fails once water rises above " + _metres(h[i]) + " m of " + _metres(top[i]) + " m",
+        )
     if "years_to_critical_lean" in walls:
         years = walls["years_to_critical_lean"].to_numpy(dtype=float)
         crit = walls["critical_lean_deg"].to_numpy(dtype=float)
-        shown = np.where(years < 1, "within a year", "in about " + _fmt(np.round(years), 0) + " years")
-        text = (
-            "lean reaches " + _fmt(crit, 1) + "° (resultant at the toe) " + shown + " at the present rate, "
-        )
-        years_part = _when(np.isfinite(years) & (years > 0), text + LEAN_CAUTION)
+
+        def lean_words(i: NDArray[np.intp]) -> NDArray[np.object_]:
+            y = years[i]
+            shown = np.where(y < 1, "within a year", "in about " + _fmt(np.round(y), 0) + " years")
+            head = "lean reaches " + _fmt(crit[i], 1) + "° (resultant at the toe) "
+            return head + shown + " at the present rate, " + LEAN_CAUTION
+
+        years_part = _only(np.isfinite(years) & (years > 0), lean_words)
     return water, years_part
 
 
@@ -324,18 +340,24 @@ def near_toe_words(limit_m: float) -> str:
     return f"resultant within {limit_m * 1000:g} mm of the toe"
 
 
-def _case_part(r: pd.DataFrame, words: str, near_toe_m: float) -> NDArray[np.object_]:
-    """One case's words where it fails; a bearing check with the resultant at the toe in words."""
+def _case_part(r: pd.DataFrame, near_toe_m: float) -> NDArray[np.object_]:
+    """One case's words where it fails (without the case's name); a bearing check with the
+    resultant at the toe in words."""
     util = r["utilisation"].to_numpy(dtype=float)
-    check = _check_words(r)
-    figure = " (utilisation " + _fmt(util, 2) + ")"
-    if near_toe_m > 0 and "resultant_from_toe_m" in r:
-        at_toe = near_toe(r["resultant_from_toe_m"], near_toe_m) & (
-            r["governing_check"].to_numpy(dtype=object) == "bearing"
-        )
-        check = np.where(at_toe, f"the resultant is within {near_toe_m * 1000:g} mm of the toe", check)
-        figure = np.where(at_toe, "", figure)
-    return _when(util > 1, words + check + figure)
+
+    def words(i: NDArray[np.intp]) -> NDArray[np.object_]:
+        failing = r.iloc[i]
+        check = _check_words(failing)
+        figure = " (utilisation " + _fmt(util[i], 2) + ")"
+        if near_toe_m > 0 and "resultant_from_toe_m" in failing:
+            at_toe = near_toe(failing["resultant_from_toe_m"], near_toe_m) & (
+                failing["governing_check"].to_numpy(dtype=object) == "bearing"
+            )
+            check = np.where(at_toe, f"the resultant is within {near_toe_m * 1000:g} mm of the toe", check)
+            figure = np.where(at_toe, "", figure)
+        return (check + figure).astype(object)
+
+    return _only(util > 1, words)
 
 
 def _suspect_part(walls: pd.DataFrame) -> NDArray[np.object_]:
@@ -364,16 +386,13 @@ def reasons(
     ``years_to_critical_lean``); ``by_case``
     the results of the ``surveyed`` and ``blocked`` cases, row for row with ``walls``.
     """
-    parts: list[NDArray[np.object_]] = []
-    for case, words in (("surveyed", "as surveyed "), ("blocked", "with drains blocked ")):
-        parts.append(_case_part(by_case[case], words, near_toe_m))
+    surveyed, blocked = (_case_part(by_case[case], near_toe_m) for case in ("surveyed", "blocked"))
     # say the blocked case only where it adds to the surveyed one
-    same = (parts[1] != "") & (
-        np.char.replace(parts[1].astype(str), "with drains blocked ", "")
-        == np.char.replace(parts[0].astype(str), "as surveyed ", "")
-    )
-    parts[1] = _when(~same, parts[1])
-    none_fail = (parts[0] == "") & (parts[1] == "")
+    none_fail = (surveyed == "") & (blocked == "")
+    parts = [
+        _only(surveyed != "", lambda i: "as surveyed " + surveyed[i]),
+        _only((blocked != "") & (blocked != surveyed), lambda i: "with drains blocked " + blocked[i]),
+    ]
     if "p_failure" in by_case["surveyed"] and "data_inconsistent" in walls:
         # with samples on the probabilities take the place of the utilisations (method.md §13)
         parts = [probability_parts(walls, by_case)]
@@ -381,23 +400,26 @@ def reasons(
     water, years = _critical_parts(walls)
     parts.append(water)
     cond = walls["condition_rating"].to_numpy(dtype=float)
-    parts.append(_when(cond >= 3, "condition " + _fmt(cond, 0)))
+    parts.append(_only(cond >= 3, lambda i: "condition " + _fmt(cond[i], 0)))
     lean = walls["lean_deg"].to_numpy(dtype=float)
-    parts.append(_when(lean >= 1.0, "lean " + _fmt(lean, 1) + "° outwards"))
+    parts.append(_only(lean >= 1.0, lambda i: "lean " + _fmt(lean[i], 1) + "° outwards"))
     if "lean_rate_deg_per_year" in walls:
         rate = walls["lean_rate_deg_per_year"].to_numpy(dtype=float)
         growing = (
             walls["lean_growing"].fillna(False).to_numpy(dtype=bool) if "lean_growing" in walls else rate > 0
         )
-        parts.append(_when(growing, "lean growing " + _fmt(rate, 2) + "°/yr"))
+        parts.append(_only(growing, lambda i: "lean growing " + _fmt(rate[i], 2) + "°/yr"))
     parts.append(years)
     crack = walls["crack_height_m"].to_numpy(dtype=float)
-    parts.append(_when(np.isfinite(crack), "crack at " + _fmt(crack, 1) + " m"))
-    below = np.char.replace(walls["consequence"].to_numpy(dtype=str), "_", " ").astype(object)
+    parts.append(_only(np.isfinite(crack), lambda i: "crack at " + _fmt(crack[i], 1) + " m"))
+    codes, classes = pd.factorize(walls["consequence"].to_numpy(dtype=str))
+    below = np.asarray([str(c).replace("_", " ") for c in classes] or [""], dtype=object)[codes]
     parts.append(below + " below, " + _fmt(walls["height_m"], 1) + " m high")
-    text = np.full(len(walls), "", dtype=object)
     passes = _when(none_fail, "passes every check in every case")
-    for part in (_suspect_part(walls), passes, *parts):  # a data warning is said first
-        text = text + np.where((text != "") & (part != ""), "; ", "") + part
-    s = pd.Series(text, dtype=object)
-    return (s.str.slice(0, 1).str.upper() + s.str.slice(1)).to_numpy(dtype=object)
+    return _joined([_suspect_part(walls), passes, *parts])  # a data warning is said first
+
+
+def _joined(parts: list[NDArray[np.object_]]) -> NDArray[np.object_]:
+    """Row by row, the non-empty parts joined by "; ", the first letter a capital."""
+    lines = ["; ".join(filter(None, row)) for row in zip(*parts, strict=True)]
+    return np.array([t[:1].upper() + t[1:] for t in lines], dtype=object).reshape(-1)

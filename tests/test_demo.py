@@ -29,6 +29,7 @@ def test_demo_writes_every_output_consistently(tmp_path: Path) -> None:
         "results.csv",
         "problems.csv",
         "assumptions.csv",
+        "assumption_sources.csv",
         "changes.csv",
         "history.gpkg",
         "run.json",

@@ -85,7 +85,7 @@ def test_only_the_materials_configured_are_checked() -> None:
     assert res.loc["MC", "joint_height_m"].isna().all()
     assert res.loc["SM", "joint_height_m"].notna().all()
     assert res.loc["BLANK", "joint_height_m"].notna().all()
-    assumed = prepare(reg).assumptions
+    assumed = prepare(reg).assumptions.long()
     assert ((assumed.wall_id == "BLANK") & (assumed.column == "material")).any()
     off = screen(reg, Config(joint_planes=0))
     assert off[["joint_height_m", *JOINT_UTILS]].isna().all().all()

@@ -165,7 +165,7 @@ def test_nothing_user_facing_names_a_development_file() -> None:
         {"wall_id": "B", "height_m": 3.0, "base_width_m": 2.0, "top_width_m": 0.6, "wall_unit_weight_kn_m3": 21.0},
     ]
     run = evaluate(pd.DataFrame(walls))
-    for text in run.prepared.assumptions["source"].astype(str):
+    for text in run.prepared.assumptions.long()["source"].astype(str):
         assert "shared/" not in text and ".md" not in text, text
 
 

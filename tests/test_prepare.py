@@ -94,7 +94,7 @@ def test_every_default_is_recorded_with_its_source() -> None:
     # a sparse row: only the required columns
     reg = pd.DataFrame([{"wall_id": "SPARSE", "height_m": 3.0, "base_width_m": 1.5, "top_width_m": 0.6}])
     p = prepare(reg)
-    a = p.assumptions.set_index("column")
+    a = p.assumptions.long().set_index("column")
     # method.md §7 defaults
     assert a.loc["surcharge_kpa", "value"] == 10.0 and "BS 8002" in a.loc["surcharge_kpa", "source"]
     assert a.loc["soil_friction_deg", "value"] == 30.0
@@ -180,15 +180,14 @@ def test_foundation_soil_defaults_are_recorded_where_used() -> None:
     # (Annex D where φ'_f is given; with passive_mobilisation on, every wall)
     reg = pd.DataFrame([worked_wall("AD", 2.0, foundation_friction_deg=30.0), worked_wall("PR", 2.0)])
     p = prepare(reg)
-    used = set(p.assumptions.loc[p.assumptions.wall_id == "AD", "column"])
+    facts = p.assumptions.long()
+    used = set(facts.loc[facts.wall_id == "AD", "column"])
     assert {"foundation_cohesion_kpa", "foundation_unit_weight_kn_m3", "embedment_m"} <= used
-    assert not {"foundation_cohesion_kpa", "embedment_m"} & set(
-        p.assumptions.loc[p.assumptions.wall_id == "PR", "column"]
-    )
+    assert not {"foundation_cohesion_kpa", "embedment_m"} & set(facts.loc[facts.wall_id == "PR", "column"])
     filled = p.walls.set_index("wall_id")
     assert filled.loc["PR", "foundation_unit_weight_kn_m3"] == 19.0 and filled.loc["PR", "embedment_m"] == 0.0
     assert np.isnan(filled.loc["PR", "foundation_friction_deg"])
-    passive = prepare(reg, Config(passive_mobilisation=0.5)).assumptions
+    passive = prepare(reg, Config(passive_mobilisation=0.5)).assumptions.long()
     assert {"foundation_unit_weight_kn_m3", "embedment_m"} <= set(
         passive.loc[passive.wall_id == "PR", "column"]
     )

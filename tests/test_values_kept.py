@@ -93,3 +93,21 @@ def test_the_csv_files_hold_the_reference_values(tmp_path: Path) -> None:
         path = write_csv(frame, tmp_path / f"{table}.csv")
         written = pd.read_csv(path, dtype=str, keep_default_na=False)
         assert_same(_reference("sample", table), written, f"{table}.csv")
+
+
+def test_the_compact_assumption_files_hold_every_reference_fact(fresh, tmp_path: Path) -> None:
+    # assumptions.csv (one row per wall) and assumption_sources.csv as written, read back and
+    # expanded to one fact per row: the facts of the long assumptions.csv written before #18
+    from screening.assumed import read_assumptions, write_assumptions
+    from tests.reference.make_reference import facts
+
+    name, _ = fresh
+    job = sample_job() if name == "sample" else random_job()
+    written = write_assumptions(job.screening.prepared.assumptions, tmp_path)
+    assert set(written) == {"assumptions", "assumption_sources"}
+    long = read_assumptions(tmp_path).long()
+    long["wall_id"] = long["wall_id"].astype(str)
+    assert_same(_reference(name, "assumptions"), facts(long), f"{name} assumption files")
+    # and the compact file is one row per wall that took a default
+    table = pd.read_csv(tmp_path / "assumptions.csv", dtype=str, keep_default_na=False)
+    assert table["row"].is_unique and len(table) == long["row"].nunique()

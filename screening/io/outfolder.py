@@ -22,6 +22,7 @@ OUTPUT_FILES = (
     "walls.csv",
     "problems.csv",
     "assumptions.csv",
+    "assumption_sources.csv",
     "changes.csv",
     "report.xlsx",
     "walls.gpkg",

@@ -34,6 +34,7 @@ from matplotlib.figure import Figure
 from matplotlib.patches import Polygon
 
 from screening import __version__
+from screening.assumed import Assumptions
 from screening.config import CASES, Config
 from screening.core import critical
 from screening.core.engine import DERIVED_INPUTS, ENGINE_INPUTS, decode, run_cases
@@ -285,8 +286,10 @@ def _figure(wall: pd.Series, d: dict[str, np.ndarray], j: dict[str, int], cfg: C
 # ---------------------------------------------------------------- the page's content
 
 
-def _input_rows(wall: pd.Series, assumptions: pd.DataFrame) -> list[dict[str, Any]]:
+def _input_rows(wall: pd.Series, assumptions: Assumptions | pd.DataFrame) -> list[dict[str, Any]]:
     """Section 1: every input of the engine, as recorded or as assumed (and why)."""
+    if isinstance(assumptions, Assumptions):
+        assumptions = assumptions.for_wall(wall["wall_id"])
     assumed = assumptions.set_index("column") if len(assumptions) else pd.DataFrame()
 
     def origin(key: str) -> str:
@@ -661,7 +664,7 @@ def sheet_context(
     wall: pd.Series,
     d: dict[str, np.ndarray],
     j: dict[str, int],
-    assumptions: pd.DataFrame,
+    assumptions: Assumptions | pd.DataFrame,
     cfg: Config,
     provenance: list[tuple[str, Any]],
     with_figure: bool = True,
@@ -721,7 +724,7 @@ def sheet_html(
     wall: pd.Series,
     d: dict[str, np.ndarray],
     j: dict[str, int],
-    assumptions: pd.DataFrame,
+    assumptions: Assumptions | pd.DataFrame,
     cfg: Config,
     provenance: list[tuple[str, Any]],
     with_figure: bool = True,
@@ -755,7 +758,7 @@ def _verdict(case: str, d: dict[str, np.ndarray], i: int) -> str:
 
 def write_sheets(
     walls: pd.DataFrame,
-    assumptions: pd.DataFrame,
+    assumptions: Assumptions | pd.DataFrame,
     wall_ids: Iterable[str],
     out_dir: str | Path,
     config: Config,
@@ -855,7 +858,7 @@ def _write_one(pos: int) -> tuple[str, str]:
     wall = sub.iloc[pos]
     j = {case: pos + c * n for c, case in enumerate(CASES)}
     wid = str(wall["wall_id"])
-    own = assumptions[assumptions["wall_id"].astype(str) == wid]
+    own = assumptions.for_wall(wid) if isinstance(assumptions, Assumptions) else assumptions
     context = sheet_context(wall, d, j, own, config, provenance, with_figure)
     if draws is not None:
         case = max(CASES, key=lambda c: float(np.nan_to_num(d["utilisation"][j[c]], posinf=1e300)))

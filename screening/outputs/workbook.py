@@ -19,6 +19,7 @@ import pandas as pd
 import xlsxwriter
 from xlsxwriter.worksheet import Worksheet
 
+from screening.assumed import Assumptions
 from screening.io.writers import write_atomic
 from screening.priority import BAND_LABELS, LEAN_CAUTION, near_toe, near_toe_words
 
@@ -505,7 +506,7 @@ def write_workbook(
     walls: pd.DataFrame,
     results: pd.DataFrame,
     problems: pd.DataFrame,
-    assumptions: pd.DataFrame,
+    assumptions: Assumptions | pd.DataFrame,
     settings: dict[str, Any],
     provenance: list[tuple[str, Any]],
     method_text: list[tuple[str, str]] = METHOD_TEXT,
@@ -715,9 +716,11 @@ def _rejected_sheet(out: _Book, problems: pd.DataFrame) -> None:
     out.table(sheet, problems, PROBLEM_COLUMNS, widths={"message": 80}, start_row=2)
 
 
-def _assumed_sheets(out: _Book, assumptions: pd.DataFrame) -> None:
+def _assumed_sheets(out: _Book, assumptions: Assumptions | pd.DataFrame) -> None:
     """The same default is usually used for many walls: one row per default on 'Assumed
     defaults', one row per wall on 'Assumed per wall' (every single one is in assumptions.csv)."""
+    if isinstance(assumptions, Assumptions):  # the compact form of screening.assumed
+        assumptions = assumptions.long()
     sheet = out.sheet("Assumed defaults")
     out.table(sheet, _assumption_summary(assumptions), ASSUMPTION_COLUMNS, widths={"source": 90, "value": 14})
     sheet = out.sheet("Assumed per wall")

@@ -92,7 +92,8 @@ def rounded(frame: pd.DataFrame) -> pd.DataFrame:
 
 
 def facts(assumptions: pd.DataFrame) -> pd.DataFrame:
-    """The assumptions one fact per row, in a fixed order."""
+    """The assumptions one fact per row (the long form: wall, row, column, value, source), in a
+    fixed order."""
     cols = ["wall_id", "row", "column", "value", "source"]
     out = assumptions[cols].copy()
     for col in cols:
@@ -111,7 +112,7 @@ def tables(job) -> dict[str, pd.DataFrame]:  # type: ignore[no-untyped-def]
     return {
         "results": rounded(run.results.reindex(columns=list(RESULT_COLUMNS)).reset_index(drop=True)),
         "walls": rounded(job.walls.reset_index(drop=True)),
-        "assumptions": facts(run.prepared.assumptions),
+        "assumptions": facts(run.prepared.assumptions.long()),
     }
 
 
