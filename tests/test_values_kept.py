@@ -120,7 +120,8 @@ def test_results_csv_keeps_the_stated_decimals(tmp_path: Path) -> None:
     assert [r[0] for r in rows] == ["70.7", "inf", "0", ""]  # -0.0 is written as 0
     assert [r[1] for r in rows] == ["0.097", "1.235", "0", "1234.57"]  # mm, and 6 figures at most
     assert [r[2] for r in rows] == ["1.414", "0.999", "1.001", "inf"]
-    assert [r[3] for r in rows] == ["1.23457e-7", "0.5", "0", ""]  # other numbers: 6 figures (pyarrow writes no leading 0 in the exponent)
+    # other numbers: 6 figures (pyarrow writes no leading 0 in the exponent)
+    assert [r[3] for r in rows] == ["1.23457e-7", "0.5", "0", ""]
 
 
 def test_the_comparison_holds_results_to_their_decimals() -> None:
