@@ -90,13 +90,6 @@ def _sql_type(col: str) -> str:
     return "TEXT" if col in TEXT else "INTEGER" if col in INTEGER else "REAL"
 
 
-def _gpkg_blob(geom: Any) -> bytes | None:
-    """A GeoPackage geometry blob: 'GP', version 0, flags (little endian, no envelope), SRS id, WKB."""
-    if geom is None:
-        return None
-    return b"GP" + bytes([0, 0b00000001]) + struct.pack("<i", SRS_ID) + shapely.to_wkb(geom, byte_order=1)
-
-
 def _create(path: Path) -> None:
     """Create an empty history GeoPackage (atomically: no half-made file is ever visible)."""
     import geopandas as gpd
@@ -197,9 +190,7 @@ def record_run(
     frame.insert(0, "run_id", run["run_id"])
     if "survey_date" in frame:
         frame["survey_date"] = pd.to_datetime(frame["survey_date"], errors="coerce").dt.strftime("%Y-%m-%d")
-    rows = []
-    for values, geom in zip(frame.itertuples(index=False, name=None), geometry, strict=True):
-        rows.append([_plain(v) for v in values] + [_gpkg_blob(geom)])
+    rows = list(zip(*(_plain_column(frame[c]) for c in frame.columns), _gpkg_blobs(geometry), strict=True))
     con = _connect(path)
     try:
         con.execute("BEGIN IMMEDIATE")
@@ -229,6 +220,35 @@ def record_run(
     finally:
         con.close()
     return Recorded(run["run_id"], stored=True)
+
+
+def _plain_column(values: pd.Series) -> list[Any]:
+    """A column as the values SQLite stores, converted column-wise as :func:`_plain` does one
+    value: None for a blank, 0/1 for a flag, Python ints and floats (infinity kept)."""
+    if pd.api.types.is_bool_dtype(values.dtype) and not values.isna().any():
+        return values.to_numpy(dtype=int).tolist()
+    if isinstance(values.dtype, np.dtype) and values.dtype.kind in "iu":
+        return values.to_numpy().tolist()
+    if isinstance(values.dtype, np.dtype) and values.dtype.kind == "f":
+        v = values.to_numpy(dtype=float)
+        out = v.astype(object)
+        out[np.isnan(v)] = None
+        return out.tolist()
+    return [_plain(v) for v in values.to_numpy(dtype=object)]
+
+
+def _gpkg_blobs(geometry: np.ndarray) -> list[bytes | None]:
+    """GeoPackage geometry blobs: 'GP', version 0, flags (little endian, no envelope), SRS id,
+    then the WKB (made for every geometry in one call); None where there is no geometry."""
+    geoms = np.asarray(geometry, dtype=object)
+    present = np.array([g is not None for g in geoms], dtype=bool)
+    out: list[bytes | None] = [None] * len(geoms)
+    if present.any():
+        head = b"GP" + bytes([0, 0b00000001]) + struct.pack("<i", SRS_ID)
+        wkb = shapely.to_wkb(geoms[present], byte_order=1)
+        for i, blob in zip(np.flatnonzero(present), wkb, strict=True):
+            out[i] = head + blob
+    return out
 
 
 def _plain(v: Any) -> Any:

@@ -17,7 +17,7 @@ from screening import __version__
 from screening.config import Config
 from screening.io import LoadedRegister, load_register, load_table
 from screening.io.locate import locate
-from screening.io.writers import write_csv, write_text_atomic
+from screening.io.writers import result_decimals, write_csv, write_text_atomic
 from screening.io.xlsxcheck import SheetLimits
 from screening.outputs import sheet_filename
 from screening.pipeline import RESULT_COLUMNS, Screening, evaluate
@@ -448,6 +448,11 @@ def write_outputs(
     return outputs
 
 
+WORKBOOK_PROCESS_FROM = 20_000
+"""Walls from which the workbook is written in a worker process of its own while this process
+writes the other outputs (below, starting the worker costs more than it saves)."""
+
+
 def _write_all(
     job: JobResult,
     out_dir: str | Path,
@@ -456,28 +461,15 @@ def _write_all(
     map_options: MapOptions | None = None,
     sheet_ids: list[str] | None = None,
 ) -> dict[str, Path]:
-    """Write every output of a run into ``out_dir``, each file atomically."""
-    from screening.outputs.geopackage import write_geopackage
-    from screening.outputs.workbook import write_workbook
-
+    """Write every output of a run into ``out_dir``, each file atomically; the workbook, the
+    slowest, beside the others in a worker process for large registers."""
     step = progress or (lambda _name: None)
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
-    run = job.screening
-    from screening.assumed import write_assumptions
-
-    step("CSV files")
-    outputs = {
-        "results": write_csv(run.results.reindex(columns=list(RESULT_COLUMNS)), out / "results.csv"),
-        "walls": write_csv(job.walls, out / "walls.csv"),
-        "problems": write_csv(run.problems, out / "problems.csv"),
-        **write_assumptions(run.prepared.assumptions, out),
-    }
+    outputs: dict[str, Path] = {}
     if job.history is not None:
         step("comparison with the previous run")
         compare_with_history(job)
-        if job.changes is not None:
-            outputs["changes"] = write_csv(job.changes, out / "changes.csv")
     if sheet_ids:
         step(f"{len(sheet_ids)} calculation sheets")
         job.sheets.update(write_explanations(job, sheet_ids, out, progress=step))
@@ -485,20 +477,50 @@ def _write_all(
 
         remove_stale_sheets(Path(out), job.sheets.values())
         outputs["sheets"] = out / "sheets"
-    step("workbook")
-    outputs["workbook"] = write_workbook(
-        out / "report.xlsx",
-        walls=job.walls.assign(sheet=job.walls["wall_id"].astype(str).map(job.sheets)),
-        results=run.results.reindex(columns=list(RESULT_COLUMNS)),
-        problems=run.problems,
-        assumptions=run.prepared.assumptions,
-        settings=job.info.config.to_dict(),
-        provenance=provenance(job),
-        changes=job.changes,
-        full_results_limit=job.info.config.workbook_full_results_limit,
-        near_toe_m=job.info.config.resultant_near_toe_m,
-        paper=job.info.config.paper,
+    if len(job.walls) < WORKBOOK_PROCESS_FROM:
+        step("workbook")
+        outputs["workbook"] = write_workbook_of(job, out / "report.xlsx")
+        outputs.update(_write_the_rest(job, out, step, map_options))
+    else:
+        import concurrent.futures as cf
+        import multiprocessing as mp
+
+        # spawn, not fork: a forked child would carry (and count again) the whole run's memory
+        with cf.ProcessPoolExecutor(1, mp_context=mp.get_context("spawn")) as pool:
+            workbook = pool.submit(_write_workbook_call, workbook_arguments(job, out / "report.xlsx"))
+            outputs.update(
+                _write_the_rest(job, out, lambda name: step(f"{name} (and the workbook)"), map_options)
+            )
+            step("workbook")
+            outputs["workbook"] = workbook.result()
+    outputs["run"] = write_text_atomic(
+        out / "run.json", json.dumps(dict(provenance(job)), indent=2, default=str)
     )
+    job.outputs.update(outputs)
+    return outputs
+
+
+def _write_the_rest(
+    job: JobResult, out: Path, step: Progress, map_options: MapOptions | None
+) -> dict[str, Path]:
+    """The CSV files, GeoPackage, Parquet, map and history (every output but the workbook)."""
+    from screening.assumed import write_assumptions
+    from screening.outputs.geopackage import write_geopackage
+
+    run = job.screening
+    step("CSV files")
+    outputs = {
+        "results": write_csv(
+            run.results.reindex(columns=list(RESULT_COLUMNS)),
+            out / "results.csv",
+            decimals=result_decimals(RESULT_COLUMNS),
+        ),
+        "walls": write_csv(job.walls, out / "walls.csv"),
+        "problems": write_csv(run.problems, out / "problems.csv"),
+        **write_assumptions(run.prepared.assumptions, out),
+    }
+    if job.changes is not None:
+        outputs["changes"] = write_csv(job.changes, out / "changes.csv")
     step("GeoPackage")
     outputs["geopackage"] = write_geopackage(job.walls, job.geometry, out / "walls.gpkg")
     step("Parquet")
@@ -509,11 +531,46 @@ def _write_all(
         step("history")
         job.recorded = record_history(job)
         outputs["history"] = job.history
-    outputs["run"] = write_text_atomic(
-        out / "run.json", json.dumps(dict(provenance(job)), indent=2, default=str)
-    )
-    job.outputs.update(outputs)
     return outputs
+
+
+def workbook_arguments(job: JobResult, target: Path) -> dict[str, Any]:
+    """The arguments of :func:`screening.outputs.workbook.write_workbook` for this run; of the
+    results, only the walls the sheet 'Results by case' shows (it keeps the first walls of the
+    ranking), so that little is sent to a worker process."""
+    from screening.outputs.workbook import wall_columns_shown
+
+    run = job.screening
+    config = job.info.config
+    walls = job.walls[[c for c in wall_columns_shown() if c in job.walls.columns]]
+    results = run.results.reindex(columns=list(RESULT_COLUMNS))
+    limit = config.workbook_full_results_limit
+    if len(job.walls) > limit:
+        results = results[results["wall_id"].isin(set(job.walls["wall_id"].head(limit)))]
+    return {
+        "target": target,
+        "walls": walls.assign(sheet=walls["wall_id"].astype(str).map(job.sheets)),
+        "results": results,
+        "problems": run.problems,
+        "assumptions": run.prepared.assumptions,
+        "settings": config.to_dict(),
+        "provenance": provenance(job),
+        "changes": job.changes,
+        "full_results_limit": limit,
+        "near_toe_m": config.resultant_near_toe_m,
+        "paper": config.paper,
+    }
+
+
+def _write_workbook_call(arguments: dict[str, Any]) -> Path:
+    from screening.outputs.workbook import write_workbook
+
+    return write_workbook(**arguments)
+
+
+def write_workbook_of(job: JobResult, target: Path) -> Path:
+    """``report.xlsx`` of this run, written in this process."""
+    return _write_workbook_call(workbook_arguments(job, target))
 
 
 def write_parquet(job: JobResult, out: Path) -> dict[str, Path]:

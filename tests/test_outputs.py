@@ -157,3 +157,26 @@ def test_sheets_longer_than_excel_allows_are_cut_with_a_note(tmp_path: Path, mon
     assert book["Ranked walls"].max_row == 5
     notes = [r[1] for r in book["Settings"].iter_rows(values_only=True) if r[0] == "note"]
     assert any("'Ranked walls' shows the first 4 of 8 rows" in n for n in notes)
+
+
+def _cells(path: Path) -> dict[str, list[tuple[object, ...]]]:
+    book = openpyxl.load_workbook(path, read_only=True)
+    return {ws.title: [tuple(row) for row in ws.iter_rows(values_only=True)] for ws in book.worksheets}
+
+
+def test_the_workbook_written_in_a_worker_process_is_the_same(tmp_path: Path, monkeypatch) -> None:
+    # large registers have the workbook written in a spawned worker beside the other outputs:
+    # the same sheets and cells as when it is written in the run's own process
+    from screening import job as job_module
+    from tests.reference.make_reference import sample_job
+
+    job = sample_job()
+    job_module.write_outputs(job, tmp_path / "here")
+    monkeypatch.setattr(job_module, "WORKBOOK_PROCESS_FROM", 0)
+    job.history = None  # the history was recorded by the first write
+    job_module.write_outputs(job, tmp_path / "worker")
+    here, worker = _cells(tmp_path / "here" / "report.xlsx"), _cells(tmp_path / "worker" / "report.xlsx")
+    assert list(worker) == list(here)
+    for name in here:
+        assert worker[name] == here[name], name
+    assert not list((tmp_path / "worker").glob("*.part*"))

@@ -25,8 +25,12 @@ def _numbers(values: pd.Series) -> np.ndarray:
     return pd.to_numeric(values.replace("", np.nan), errors="coerce").to_numpy(dtype=float)
 
 
-def assert_same(old: pd.DataFrame, new: pd.DataFrame, what: str) -> None:
-    """Same columns, rows and text; numbers within 6 significant figures (1e-5 relative).
+def assert_same(
+    old: pd.DataFrame, new: pd.DataFrame, what: str, decimals: dict[str, int] | None = None
+) -> None:
+    """Same columns, rows and text; numbers within 6 significant figures (1e-5 relative), and
+    those of a column in ``decimals`` within half a unit of its last decimal (the precision
+    results.csv states) beside the 6 figures of the reference itself.
 
     Columns added since the references were written (the probabilities, the data flags) are
     not compared; the reason line's wording was changed on purpose since (issue #16: data
@@ -43,7 +47,11 @@ def assert_same(old: pd.DataFrame, new: pd.DataFrame, what: str) -> None:
         if not differ.any():
             continue
         x, y = _numbers(old[col])[differ], _numbers(new[col])[differ]
-        close = np.isclose(x, y, rtol=1e-5, atol=1e-9) | (x == y)
+        if decimals and col in decimals:
+            close = np.abs(x - y) <= 0.5 * 10.0 ** -decimals[col] * (1 + 1e-9) + 5e-6 * np.abs(x)
+        else:
+            close = np.isclose(x, y, rtol=1e-5, atol=1e-9)
+        close |= x == y
         bad = np.flatnonzero(differ)[~close]
         assert not len(bad), f"{what}.{col}: {len(bad)} rows differ, e.g. {a[bad[0]]!r} -> {b[bad[0]]!r}"
 
@@ -80,19 +88,20 @@ def test_the_comparison_catches_a_change_in_the_sixth_figure(tmp_path: Path) -> 
 
 
 def test_the_csv_files_hold_the_reference_values(tmp_path: Path) -> None:
-    # results.csv and walls.csv as written (6 significant figures, inf kept) against the
-    # references of the code before the speed work
-    from screening.io.writers import write_csv
+    # results.csv and walls.csv as written (results.csv at the decimals of its columns, walls.csv
+    # at 6 significant figures, inf kept) against the references of the code before the speed work
+    from screening.io.writers import result_decimals, write_csv
     from screening.pipeline import RESULT_COLUMNS
 
     job = sample_job()
-    for table, frame in (
-        ("results", job.screening.results.reindex(columns=list(RESULT_COLUMNS))),
-        ("walls", job.walls),
+    decimals = result_decimals(RESULT_COLUMNS)
+    for table, frame, places in (
+        ("results", job.screening.results.reindex(columns=list(RESULT_COLUMNS)), decimals),
+        ("walls", job.walls, {}),
     ):
-        path = write_csv(frame, tmp_path / f"{table}.csv")
+        path = write_csv(frame, tmp_path / f"{table}.csv", decimals=places)
         written = pd.read_csv(path, dtype=str, keep_default_na=False)
-        assert_same(_reference("sample", table), written, f"{table}.csv")
+        assert_same(_reference("sample", table), written, f"{table}.csv", decimals=places)
 
 
 def test_the_compact_assumption_files_hold_every_reference_fact(fresh, tmp_path: Path) -> None:
@@ -111,3 +120,30 @@ def test_the_compact_assumption_files_hold_every_reference_fact(fresh, tmp_path:
     # and the compact file is one row per wall that took a default
     table = pd.read_csv(tmp_path / "assumptions.csv", dtype=str, keep_default_na=False)
     assert table["row"].is_unique and len(table) == long["row"].nunique()
+
+
+def test_results_csv_keeps_the_stated_decimals(tmp_path: Path) -> None:
+    from screening.io.writers import result_decimals, write_csv
+
+    frame = pd.DataFrame(
+        {
+            "toe_pressure_kpa": [70.68694, np.inf, -0.04, np.nan],
+            "eccentricity_m": [0.0970467, 1.2345678, 0.0004, 1234.56789],
+            "sliding_utilisation": [1.41361, 0.99949, 1.0006, np.inf],
+            "p_failure": [1.234567e-7, 0.5, 0.0, np.nan],
+        }
+    )
+    path = write_csv(frame, tmp_path / "r.csv", decimals=result_decimals(list(frame.columns)))
+    rows = [line.split(",") for line in path.read_text(encoding="utf-8").splitlines()[1:]]
+    assert [r[0] for r in rows] == ["70.7", "inf", "0", ""]  # -0.0 is written as 0
+    assert [r[1] for r in rows] == ["0.097", "1.235", "0", "1234.57"]  # mm, and 6 figures at most
+    assert [r[2] for r in rows] == ["1.414", "0.999", "1.001", "inf"]
+    # other numbers: 6 figures (pyarrow writes no leading 0 in the exponent)
+    assert [r[3] for r in rows] == ["1.23457e-7", "0.5", "0", ""]
+
+
+def test_the_comparison_holds_results_to_their_decimals() -> None:
+    old = pd.DataFrame({"e_m": ["0.0970467", "1.5"]})
+    assert_same(old, pd.DataFrame({"e_m": ["0.097", "1.5"]}), "kept", decimals={"e_m": 3})
+    with pytest.raises(AssertionError, match="e_m: 1 rows differ"):
+        assert_same(old, pd.DataFrame({"e_m": ["0.098", "1.5"]}), "moved", decimals={"e_m": 3})

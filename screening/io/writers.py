@@ -8,7 +8,7 @@ from __future__ import annotations
 import contextlib
 import os
 import tempfile
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Sequence
 from pathlib import Path
 
 import numpy as np
@@ -91,18 +91,50 @@ def significant(values: np.ndarray, digits: int = CSV_DIGITS) -> np.ndarray:
     return out
 
 
+RESULT_DECIMALS = (
+    (("_kn_m", "_knm_m", "_kpa"), 1),
+    (("_m",), 3),
+    (("utilisation", "margin", "fos_"), 3),
+)
+"""Decimals of the numbers in ``results.csv`` by the unit their name ends with (README,
+"Outputs"): forces [kN/m], moments [kNm/m] and pressures [kPa] to 0.1, lengths [m] to the mm,
+utilisations, margins and factors of safety to 0.001. Any other number keeps
+:data:`CSV_DIGITS` significant figures."""
+
+
+def result_decimals(columns: Sequence[str]) -> dict[str, int]:
+    """The decimals of each column of ``results.csv`` that has a fixed number of them
+    (:data:`RESULT_DECIMALS`)."""
+    out: dict[str, int] = {}
+    for col in columns:
+        for marks, decimals in RESULT_DECIMALS:
+            if col.endswith(marks) or (marks[0] == "utilisation" and any(m in col for m in marks)):
+                out[col] = decimals
+                break
+    return out
+
+
+def rounded(values: np.ndarray, decimals: int) -> np.ndarray:
+    """Floats rounded to ``decimals`` places (half to even, as numpy rounds), so that their
+    shortest text has at most that many; ``inf`` and NaN unchanged, -0 written as 0."""
+    v = np.round(np.asarray(values, dtype=float), decimals)
+    return np.where(v == 0, 0.0, v)
+
+
 def csv_text(values: pd.Series) -> pd.Series:
     """The hook every text column passes through before it is written (identity here)."""
     return values
 
 
-def _arrow_column(values: pd.Series) -> pa.Array:
+def _arrow_column(values: pd.Series, decimals: int | None = None) -> pa.Array:
     """One column as pandas' ``to_csv`` would write it: NaN blank, ``inf`` kept, True/False,
-    dates as YYYY-MM-DD; floats at :data:`CSV_DIGITS` significant figures."""
+    dates as YYYY-MM-DD; floats at :data:`CSV_DIGITS` significant figures, and no more than
+    ``decimals`` places if given."""
     if pd.api.types.is_bool_dtype(values) and not values.isna().any():
         return pa.array(np.where(values.to_numpy(dtype=bool), "True", "False"))
     if pd.api.types.is_float_dtype(values):
-        return pa.array(significant(values.to_numpy(dtype=float)), from_pandas=True)
+        v = values.to_numpy(dtype=float)
+        return pa.array(significant(v if decimals is None else rounded(v, decimals)), from_pandas=True)
     if pd.api.types.is_integer_dtype(values) and not isinstance(values.dtype, pd.CategoricalDtype):
         return pa.array(values.to_numpy())
     if pd.api.types.is_datetime64_any_dtype(values):
@@ -115,19 +147,23 @@ def _arrow_column(values: pd.Series) -> pa.Array:
     return pa.array(csv_text(text).to_numpy(dtype=object), type=pa.string(), from_pandas=True)
 
 
-def _write_arrow_csv(frame: pd.DataFrame, tmp: Path) -> None:
-    table = pa.table({str(c): _arrow_column(frame[c]) for c in frame.columns})
-    pa_csv.write_csv(table, tmp, write_options=pa_csv.WriteOptions(quoting_style="needed"))
+def _write_arrow_csv(frame: pd.DataFrame, tmp: Path, decimals: dict[str, int]) -> None:
+    table = pa.table({str(c): _arrow_column(frame[c], decimals.get(str(c))) for c in frame.columns})
+    try:  # text in quotes only where a comma, quote or line break needs them, as pandas writes it
+        pa_csv.write_csv(table, tmp, write_options=pa_csv.WriteOptions(quoting_style="none"))
+    except pa.ArrowInvalid:  # some text needs quotes: pyarrow then quotes every text cell
+        pa_csv.write_csv(table, tmp, write_options=pa_csv.WriteOptions(quoting_style="needed"))
 
 
-def write_csv(frame: pd.DataFrame, target: str | Path) -> Path:
-    """CSV with ``inf`` written as such, blanks for missing values, numbers at
-    :data:`CSV_DIGITS` significant figures (pyarrow's writer: some 10 times pandas' speed) and
-    text made safe to open in a spreadsheet (:func:`csv_safe_text`)."""
+def write_csv(frame: pd.DataFrame, target: str | Path, decimals: dict[str, int] | None = None) -> Path:
+    """CSV with ``inf`` written as such, blanks for missing values, numbers to the ``decimals``
+    of their column where given, else at :data:`CSV_DIGITS` significant figures (pyarrow's
+    writer: some 10 times pandas' speed) and text made safe to open in a spreadsheet
+    (:func:`csv_safe_text`)."""
     frame = csv_safe_text(frame)
     if frame.columns.has_duplicates or not len(frame.columns):
         return write_atomic(target, lambda tmp: frame.to_csv(tmp, index=False, encoding="utf-8"))
-    return write_atomic(target, lambda tmp: _write_arrow_csv(frame, tmp))
+    return write_atomic(target, lambda tmp: _write_arrow_csv(frame, tmp, decimals or {}))
 
 
 FORMULA_START = ("=", "+", "-", "@", "\t", "\r")

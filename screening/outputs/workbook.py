@@ -368,14 +368,37 @@ def _table(
         sheet.write_string(start_row, c, header, f.header)
         width = _column_width(name, header, widths)
         sheet.set_column(c, c, width, _column_format(f, kind, width))
+    heights = _row_heights(frame, cols, widths)
+    for first in range(0, len(frame), ROWS_AT_ONCE):
+        part = frame.iloc[first : first + ROWS_AT_ONCE]
+        _rows(sheet, part, cols, heights[first : first + ROWS_AT_ONCE], start_row + 1 + first, f)
+    last = start_row + len(frame)
+    sheet.freeze_panes(start_row + 1, 2 if len(cols) > 2 else 0)
+    sheet.autofilter(start_row, 0, max(last, start_row), len(cols) - 1)
+    return last
+
+
+ROWS_AT_ONCE = 10_000
+"""Rows converted to cell values at a time (the Python objects of a whole large sheet at once
+would take more memory than the sheet's data)."""
+
+
+def _rows(
+    sheet: Worksheet,
+    frame: pd.DataFrame,
+    cols: Sequence[tuple[str, str, str]],
+    heights: Any,
+    first_row: int,
+    f: _Formats,
+) -> None:
+    """Rows of a table from ``first_row``: values converted column-wise, written row by row."""
     links = [c for c, (_, _, kind) in enumerate(cols) if kind == "link"]
     data = [
         [None] * len(frame) if kind == "link" else _column_values(frame[name], kind) for name, _, kind in cols
     ]
     link_values = {c: frame[cols[c][0]].to_numpy(dtype=object) for c in links}
-    heights = _row_heights(frame, cols, widths)
     for i, row in enumerate(zip(*data, strict=True)):
-        r = start_row + 1 + i
+        r = first_row + i
         if heights[i]:
             sheet.set_row(r, heights[i])
         sheet.write_row(r, 0, row)
@@ -383,10 +406,6 @@ def _table(
             target = link_values[c][i]
             if isinstance(target, str) and target:
                 sheet.write_url(r, c, f"external:{target}", f.link, string="open sheet")
-    last = start_row + len(frame)
-    sheet.freeze_panes(start_row + 1, 2 if len(cols) > 2 else 0)
-    sheet.autofilter(start_row, 0, max(last, start_row), len(cols) - 1)
-    return last
 
 
 def _print_kind(name: str, kind: str) -> str:
@@ -648,6 +667,13 @@ MEASURE_COLUMNS: Sequence[tuple[str, str, str]] = (
     ("p_failure_blocked", "P(failure) blocked, given it stands [-]", "num3"),
     ("p_failure_surveyed", "P(failure) surveyed, given it stands [-]", "num3"),
 )
+
+
+def wall_columns_shown() -> list[str]:
+    """The columns of the walls table that the workbook shows (the others need not be sent to
+    a process writing it)."""
+    names = [c[0] for c in (*SUMMARY_COLUMNS, *MEASURE_COLUMNS) if c[0] not in ("walls", "sheet")]
+    return list(dict.fromkeys(names))
 
 
 def _measure_next_sheet(out: _Book, walls: pd.DataFrame) -> None:
