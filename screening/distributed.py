@@ -110,6 +110,34 @@ def check_options(workers: int | None, address: str | None) -> None:
         _require_distributed()
 
 
+TRIM_VARIABLE = "MALLOC_TRIM_THRESHOLD_"
+
+
+@contextmanager
+def _adaptive_allocator() -> Iterator[None]:
+    """Workers started within keep glibc's adaptive mmap threshold.
+
+    Dask's nanny sets MALLOC_TRIM_THRESHOLD_=65536 for its workers (and leaves it in the
+    nanny's own process, which for a LocalCluster is this one). Setting it turns off glibc's
+    adaptive threshold (mallopt(3)): every array of a chunk is then a fresh mmap whose pages
+    are faulted in again, and the Monte Carlo ran 2.4x slower on two workers than in one process
+    (benchmarks/cluster.py). Unset in the nanny settings and in this process's environment for
+    as long as the cluster lives (workers restarted after a crash included), then restored.
+    """
+    import os
+
+    import dask
+
+    saved = os.environ.pop(TRIM_VARIABLE, None)
+    try:
+        with dask.config.set({f"distributed.nanny.pre-spawn-environ.{TRIM_VARIABLE}": None}):
+            yield
+    finally:
+        os.environ.pop(TRIM_VARIABLE, None)
+        if saved is not None:
+            os.environ[TRIM_VARIABLE] = saved
+
+
 @contextmanager
 def dask_client(
     workers: int | None = None, address: str | None = None, timeout: float = CONNECT_TIMEOUT_S
@@ -130,14 +158,8 @@ def dask_client(
         with distributed.Client(address, timeout=timeout, set_as_default=False) as client:
             yield client
         return
-    import dask
-
     with (
-        # Dask's nanny sets MALLOC_TRIM_THRESHOLD_=65536 in its workers, which turns off glibc's
-        # adaptive mmap threshold: every array of a chunk is then a fresh mmap and its pages are
-        # faulted in again, and the Monte Carlo ran 2.4x slower on the cluster than here
-        # (benchmarks/cluster.py). Unset for the workers we start; the README says how for others.
-        dask.config.set({"distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": None}),
+        _adaptive_allocator(),
         distributed.LocalCluster(
             n_workers=workers,
             threads_per_worker=1,
