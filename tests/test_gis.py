@@ -132,8 +132,8 @@ def test_parquet_reads_back_with_pyarrow_and_geopandas(sample_run) -> None:
     rcsv = pd.read_csv(out / "results.csv", dtype={"wall_id": str})
     assert list(results.columns) == list(rcsv.columns) and len(results) == len(rcsv) == 3 * len(csv)
     np.testing.assert_allclose(
-        results["utilisation"], rcsv["utilisation"], rtol=1e-5
-    )  # the CSV holds 6 significant figures
+        results["utilisation"], rcsv["utilisation"], rtol=0, atol=5e-4
+    )  # results.csv holds utilisations to 0.001 (README, "Outputs")
     assert (results["state"].astype(str) == rcsv["state"]).all()
 
 
