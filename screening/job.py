@@ -350,7 +350,7 @@ def write_explanations(
     job: JobResult, wall_ids: list[str], out_dir: str | Path, progress: Progress | None = None
 ) -> dict[str, str]:
     """Calculation sheets for the given walls (see :mod:`screening.outputs.sheets`)."""
-    from screening.outputs.sheets import write_sheets
+    from screening.outputs.sheets import figure_case_and_driver, write_sheets
 
     prepared = job.screening.prepared
     return write_sheets(
@@ -361,6 +361,7 @@ def write_explanations(
         job.info.config,
         provenance(job),
         progress=progress,
+        figures=figure_case_and_driver(job.screening.results),
     )
 
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import html
 import re
 from pathlib import Path
 
@@ -12,6 +13,7 @@ from typer.testing import CliRunner
 
 from screening.cli import app
 from screening.outputs import sheet_filename
+from screening.outputs.sheets import draws_alt, figure_case_and_driver
 from screening.pipeline import RESULT_COLUMNS
 from tests.conftest import worked_wall
 
@@ -210,6 +212,41 @@ def test_sheet_shows_the_draws_with_samples_on(sheet_run: Path) -> None:
     block = page.split('<figure class="draws">', 1)[1].split("</figure>", 1)[0]
     assert 'src="data:image/png;base64,' in block
     assert "conditional on the model" in block and "not a substitute for inspection" in block
+
+
+def test_the_draws_figure_shows_the_results_worst_case_and_its_driver(sheet_run: Path) -> None:
+    # the figure follows results.csv (the case of highest p_failure and that case's driver), so the
+    # sheet never tells a different story from the reason line; its alternative text says both
+    results = pd.read_parquet(sheet_run / "results.parquet")
+    checked = 0
+    for wall, rows in results.groupby("wall_id", observed=True):
+        path = sheet_run / "sheets" / sheet_filename(str(wall))
+        if not path.exists():
+            continue
+        rows = rows.assign(u=rows["utilisation"].replace(np.inf, 1e300))
+        top = rows.sort_values(["p_failure", "u"], ascending=False, kind="stable").iloc[0]
+        page = path.read_text(encoding="utf-8")
+        alt = page.split('<figure class="draws"><img class="fig" alt="', 1)[1].split('"', 1)[0]
+        assert alt == html.escape(draws_alt(str(top["case"]), str(top["driver"] or ""))), wall
+        checked += 1
+    assert checked >= 3
+
+
+def test_figure_case_and_driver_picks_the_highest_probability() -> None:
+    results = pd.DataFrame(
+        {
+            "wall_id": ["A"] * 3 + ["B"] * 3,
+            "case": ["drained", "blocked", "surveyed"] * 2,
+            "p_failure": [0.1, 0.4, 0.4, 0.0, 0.0, 0.0],
+            "utilisation": [0.5, 0.9, 1.2, 0.3, np.inf, 0.4],
+            "driver": ["soil_friction_deg", "base_friction_deg", "water_height_m", "", "", ""],
+        }
+    )
+    got = figure_case_and_driver(results)
+    # a tie in p_failure goes to the higher utilisation; an infinite one (outside the base) is highest
+    assert got == {"A": ("surveyed", "water_height_m"), "B": ("blocked", "")}
+    assert "water height" in draws_alt("surveyed", "water_height_m")
+    assert draws_alt("blocked", "").endswith("and no driver")
 
 
 def test_sheet_has_no_draws_with_samples_off(tmp_path: Path) -> None:

@@ -18,7 +18,7 @@ import io
 import math
 import multiprocessing as mp
 import os
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass
 from importlib import resources
 from pathlib import Path
@@ -623,8 +623,49 @@ def _draws_of(sub: pd.DataFrame, inputs: dict[str, np.ndarray], d: dict[str, np.
     return uncertainty.wall_draws(p, uncertainty.make_draws(cfg.samples, cfg.seed), cfg)
 
 
-def _draws_figure(draws: dict[str, np.ndarray], pos: int, case: str) -> str:
-    """Ultimate utilisation of one case over the draws, all and standing, and the driver's scatter."""
+DRAWN_AXIS = {
+    "soil_friction_deg": "soil friction φ′ (°)",
+    "soil_unit_weight_kn_m3": "soil unit weight γ (kN/m³)",
+    "wall_unit_weight_kn_m3": "wall unit weight γ_w (kN/m³)",
+    "base_friction_deg": "base friction δ_b (°)",
+    "joint_friction_deg": "bed-joint friction (°)",
+    "ultimate_bearing_kpa": "ultimate bearing pressure (kPa)",
+    "dimensions": "dimensions, drawn ÷ recorded",
+    "water_height_m": "water height behind the wall (m)",
+}
+"""The scatter's axis for each driver of method.md §13, in words with its unit."""
+
+
+def figure_case_and_driver(results: pd.DataFrame) -> dict[str, tuple[str, str]]:
+    """Per wall: the case its draws figure shows and the input it scatters against.
+
+    The case is the one with the highest ``p_failure`` (ties to the higher utilisation, then the
+    order of the cases), and the driver that case's ``driver`` in the results: the figure shows
+    what the reason line and results.csv say, never an input of its own choosing.
+    """
+    if results.empty or "p_failure" not in results:
+        return {}
+    r = results[["wall_id", "case", "p_failure", "utilisation", "driver"]].copy()
+    r["_p"] = pd.to_numeric(r["p_failure"], errors="coerce").fillna(-1.0)
+    r["_u"] = np.nan_to_num(
+        pd.to_numeric(r["utilisation"], errors="coerce").to_numpy(float), nan=-1.0, posinf=1e300
+    )
+    r["_c"] = r["case"].astype(str).map({c: -k for k, c in enumerate(CASES)})
+    top = r.sort_values(["_p", "_u", "_c"], ascending=False, kind="stable").drop_duplicates("wall_id")
+    drivers = top["driver"].astype(object).where(top["driver"].notna(), "").astype(str)
+    pairs = zip(top["case"].astype(str), drivers, strict=True)
+    return dict(zip(top["wall_id"].astype(str), pairs, strict=True))
+
+
+def draws_alt(case: str, driver: str) -> str:
+    """The draws figure in words (its alternative text): the case and the input it scatters against."""
+    against = f"its scatter against the {DRAWN_AXIS[driver]}" if driver in DRAWN_AXIS else "no driver"
+    return f"histogram of the ultimate utilisation, {case}, over the draws, and {against}"
+
+
+def _draws_figure(draws: dict[str, np.ndarray], pos: int, case: str, driver: str) -> str:
+    """Ultimate utilisation of one case over the draws, all and standing, and its scatter
+    against ``driver`` (the results' driver of that case; none drawn where it is blank)."""
     u = np.asarray(draws["utilisation"][CASES.index(case), pos], dtype=float)
     stands = np.asarray(draws["stands"][pos], dtype=bool)
     finite = u[np.isfinite(u)]
@@ -639,23 +680,23 @@ def _draws_figure(draws: dict[str, np.ndarray], pos: int, case: str) -> str:
     ax.set_xlabel(f"ultimate utilisation, {case} ({top:.1f} = {top:.1f} or more)", fontsize=8)
     ax.set_ylabel("draws", fontsize=8)
     ax.legend(fontsize=7)
-    name, best = "", -1.0
-    for key, v in draws.items():
-        if not key.startswith("value_") or stands.sum() < 3:
-            continue
-        x = np.asarray(v[pos], dtype=float)
-        if np.ptp(x[stands]) == 0 or np.ptp(shown[stands]) == 0:
-            continue  # constant over the standing draws: no rank correlation
-        rho = pd.Series(x[stands]).corr(pd.Series(shown[stands]), method="spearman")
-        if np.isfinite(rho) and abs(rho) > best:
-            name, best = key[6:], abs(rho)
-    if name:
-        x = np.asarray(draws[f"value_{name}"][pos], dtype=float)
+    if f"value_{driver}" in draws:
+        x = np.asarray(draws[f"value_{driver}"][pos], dtype=float)
         bx.scatter(x[~stands], shown[~stands], s=3, color="#BBBBBB")
         bx.scatter(x[stands], shown[stands], s=3, color="#332288")
-        bx.set_xlabel(f"{name} (drawn)", fontsize=8)
+        bx.set_xlabel(f"{DRAWN_AXIS.get(driver, driver)}, drawn", fontsize=8)
+    else:
+        bx.text(
+            0.5,
+            0.5,
+            "no input drives this case",
+            ha="center",
+            va="center",
+            fontsize=8,
+            transform=bx.transAxes,
+        )
     bx.axhline(1.0, color="#882255", lw=1.5)
-    bx.set_ylabel("ultimate utilisation", fontsize=8)
+    bx.set_ylabel(f"ultimate utilisation, {case}", fontsize=8)
     fig.subplots_adjust(left=0.08, right=0.99, top=0.95, bottom=0.2, wspace=0.3)
     return _png_data_uri(fig)
 
@@ -765,10 +806,13 @@ def write_sheets(
     provenance: list[tuple[str, Any]],
     with_figure: bool = True,
     progress: Callable[[str], None] | None = None,
+    figures: Mapping[str, tuple[str, str]] | None = None,
 ) -> dict[str, str]:
     """Write one sheet per wall into ``out_dir/sheets``; return wall id -> relative path.
 
-    ``progress`` hears "calculation sheet k of n" as each sheet is written.
+    ``progress`` hears "calculation sheet k of n" as each sheet is written. ``figures`` gives
+    per wall the case and driver of its draws figure (:func:`figure_case_and_driver` of the
+    run's results); a wall not in it shows its case of highest utilisation, with no scatter.
 
     ``walls`` are the prepared (accepted, defaults filled) walls; the engine is run again
     on just these walls with ``details=True``, which gives the very numbers of the bulk run
@@ -797,7 +841,7 @@ def write_sheets(
     folder.mkdir(parents=True, exist_ok=True)
     _template()  # compiled once, before any worker is forked
     global _JOB
-    _JOB = (sub, d, assumptions, config, provenance, with_figure, folder, draws)
+    _JOB = (sub, d, assumptions, config, provenance, with_figure, folder, draws, figures or {})
     try:
         if n >= 8 and "fork" in mp.get_all_start_methods() and (os.cpu_count() or 1) > 1:
             # drawing the figures dominates: share the work among the cores (forked
@@ -853,7 +897,7 @@ def _near_toe_text(d: dict[str, np.ndarray], config: Config) -> np.ndarray:
 
 
 def _write_one(pos: int) -> tuple[str, str]:
-    sub, d, assumptions, config, provenance, with_figure, folder, draws = _JOB
+    sub, d, assumptions, config, provenance, with_figure, folder, draws, figures = _JOB
     n = len(sub)
     wall = sub.iloc[pos]
     j = {case: pos + c * n for c, case in enumerate(CASES)}
@@ -861,8 +905,15 @@ def _write_one(pos: int) -> tuple[str, str]:
     own = assumptions.for_wall(wid) if isinstance(assumptions, Assumptions) else assumptions
     context = sheet_context(wall, d, j, own, config, provenance, with_figure)
     if draws is not None:
-        case = max(CASES, key=lambda c: float(np.nan_to_num(d["utilisation"][j[c]], posinf=1e300)))
-        context |= {"draws_figure": _draws_figure(draws, pos, case), "draws_caption": DRAWS_CAPTION}
+        case, driver = figures.get(wid) or (
+            max(CASES, key=lambda c: float(np.nan_to_num(d["utilisation"][j[c]], posinf=1e300))),
+            "",
+        )
+        context |= {
+            "draws_figure": _draws_figure(draws, pos, case, driver),
+            "draws_caption": DRAWS_CAPTION,
+            "draws_alt": draws_alt(case, driver),
+        }
     page = _template().render(context)
     name = sheet_filename(wid)
     write_text_atomic(folder / name, page)
