@@ -32,6 +32,7 @@ import pandas as pd
 from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 from matplotlib.patches import Polygon
+from matplotlib.ticker import MaxNLocator
 
 from screening import __version__
 from screening.assumed import Assumptions
@@ -624,14 +625,14 @@ def _draws_of(sub: pd.DataFrame, inputs: dict[str, np.ndarray], d: dict[str, np.
 
 
 DRAWN_AXIS = {
-    "soil_friction_deg": "soil friction φ′ (°)",
-    "soil_unit_weight_kn_m3": "soil unit weight γ (kN/m³)",
-    "wall_unit_weight_kn_m3": "wall unit weight γ_w (kN/m³)",
-    "base_friction_deg": "base friction δ_b (°)",
-    "joint_friction_deg": "bed-joint friction (°)",
-    "ultimate_bearing_kpa": "ultimate bearing pressure (kPa)",
-    "dimensions": "dimensions, drawn ÷ recorded",
-    "water_height_m": "water height behind the wall (m)",
+    "soil_friction_deg": "soil friction φ′ drawn (°)",
+    "soil_unit_weight_kn_m3": "soil unit weight γ drawn (kN/m³)",
+    "wall_unit_weight_kn_m3": "wall unit weight γ_w drawn (kN/m³)",
+    "base_friction_deg": "base friction δ_b drawn (°)",
+    "joint_friction_deg": "bed-joint friction drawn (°)",
+    "ultimate_bearing_kpa": "ultimate bearing pressure drawn (kPa)",
+    "dimensions": "dimensions drawn ÷ recorded",
+    "water_height_m": "water height behind the wall drawn (m)",
 }
 """The scatter's axis for each driver of method.md §13, in words with its unit."""
 
@@ -674,8 +675,16 @@ def _draws_figure(draws: dict[str, np.ndarray], pos: int, case: str, driver: str
     fig = Figure(figsize=(7.0, 2.6))
     ax, bx = fig.subplots(1, 2)
     bins = np.linspace(0.0, top, 41)
-    ax.hist(shown, bins=bins, color="#BBBBBB", label="every draw")
-    ax.hist(shown[stands], bins=bins, color="#332288", alpha=0.8, label="wall stands today")
+    # counted by numpy and drawn as one filled outline each (a bar patch per bin costs 40 artists)
+    ax.stairs(np.histogram(shown, bins)[0], bins, fill=True, color="#BBBBBB", label="every draw")
+    ax.stairs(
+        np.histogram(shown[stands], bins)[0],
+        bins,
+        fill=True,
+        color="#332288",
+        alpha=0.8,
+        label="wall stands today",
+    )
     ax.axvline(1.0, color="#882255", lw=1.5, label="limit (1)")
     ax.set_xlabel(f"ultimate utilisation, {case} ({top:.1f} = {top:.1f} or more)", fontsize=8)
     ax.set_ylabel("draws", fontsize=8)
@@ -684,7 +693,7 @@ def _draws_figure(draws: dict[str, np.ndarray], pos: int, case: str, driver: str
         x = np.asarray(draws[f"value_{driver}"][pos], dtype=float)
         bx.scatter(x[~stands], shown[~stands], s=3, color="#BBBBBB")
         bx.scatter(x[stands], shown[stands], s=3, color="#332288")
-        bx.set_xlabel(f"{DRAWN_AXIS.get(driver, driver)}, drawn", fontsize=8)
+        bx.set_xlabel(DRAWN_AXIS.get(driver, driver), fontsize=8)
     else:
         bx.text(
             0.5,
@@ -697,6 +706,10 @@ def _draws_figure(draws: dict[str, np.ndarray], pos: int, case: str, driver: str
         )
     bx.axhline(1.0, color="#882255", lw=1.5)
     bx.set_ylabel(f"ultimate utilisation, {case}", fontsize=8)
+    for a in (ax, bx):  # a few ticks: each one is a text to lay out
+        a.xaxis.set_major_locator(MaxNLocator(5))
+        a.yaxis.set_major_locator(MaxNLocator(4))
+        a.tick_params(labelsize=7)
     fig.subplots_adjust(left=0.08, right=0.99, top=0.95, bottom=0.2, wspace=0.3)
     return _png_data_uri(fig)
 
