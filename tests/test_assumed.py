@@ -92,3 +92,26 @@ def test_no_defaults() -> None:
         and len(a.long()) == 0
         and list(a.long().columns) == ["wall_id", "row", "column", "value", "source"]
     )
+
+
+def test_the_workbook_sheets_from_the_compact_form_equal_those_of_the_long_form() -> None:
+    # the 'Assumed' sheets are built column by column from the compact form (no long form at 10^5
+    # walls); they must be the rows, in the order, that the one-fact-per-row form gives
+    from benchmarks.run import synthetic_register
+    from screening.outputs import workbook
+
+    register = pd.concat([_register(), synthetic_register(300)], ignore_index=True)
+    a = prepare(register).assumptions
+    long = a.long()
+    pd.testing.assert_frame_equal(
+        workbook._compact_summary(a),
+        workbook._assumption_summary(long).reset_index(drop=True),
+        check_dtype=False,
+    )
+    pd.testing.assert_frame_equal(
+        workbook._compact_per_wall(a),
+        workbook._assumptions_per_wall(long).reset_index(drop=True),
+        check_dtype=False,
+    )
+    empty = prepare(pd.DataFrame([{"wall_id": "X", **WALL}])).assumptions.rows([])
+    assert workbook._compact_per_wall(empty).empty and workbook._compact_summary(empty).empty

@@ -746,11 +746,13 @@ def _assumed_sheets(out: _Book, assumptions: Assumptions | pd.DataFrame) -> None
     """The same default is usually used for many walls: one row per default on 'Assumed
     defaults', one row per wall on 'Assumed per wall' (every single one is in assumptions.csv)."""
     if isinstance(assumptions, Assumptions):  # the compact form of screening.assumed
-        assumptions = assumptions.long()
+        summary, per_wall = _compact_summary(assumptions), _compact_per_wall(assumptions)
+    else:
+        summary, per_wall = _assumption_summary(assumptions), _assumptions_per_wall(assumptions)
     sheet = out.sheet("Assumed defaults")
-    out.table(sheet, _assumption_summary(assumptions), ASSUMPTION_COLUMNS, widths={"source": 90, "value": 14})
+    out.table(sheet, summary, ASSUMPTION_COLUMNS, widths={"source": 90, "value": 14})
     sheet = out.sheet("Assumed per wall")
-    out.table(sheet, _assumptions_per_wall(assumptions), PER_WALL_COLUMNS, widths={"assumed": 140})
+    out.table(sheet, per_wall, PER_WALL_COLUMNS, widths={"assumed": 140})
 
 
 def _settings_sheet(out: _Book, provenance: list[tuple[str, Any]], settings: dict[str, Any]) -> None:
@@ -832,6 +834,66 @@ def _assumptions_per_wall(assumptions: pd.DataFrame) -> pd.DataFrame:
     text = assumptions["column"].astype(str) + " = " + assumptions["value"].map(_short)
     grouped = text.groupby([assumptions["wall_id"], assumptions["row"]], sort=False).agg("; ".join)
     return grouped.rename("assumed").reset_index()
+
+
+def _shorts(values: np.ndarray) -> np.ndarray:
+    """:func:`_short` of each value, formatted once per distinct value."""
+    series = pd.Series(values, dtype=object)
+    distinct = series.drop_duplicates()
+    return series.map(dict(zip(distinct, map(_short, distinct), strict=True))).to_numpy(dtype=object)
+
+
+def _compact_summary(a: Assumptions) -> pd.DataFrame:
+    """:func:`_assumption_summary` of ``a.long()``, from the compact form column by column
+    (the same rows in the same order: by first use, register row then input)."""
+    pieces = []
+    width = max(len(a.columns), 1)
+    for k, col in enumerate(a.columns):
+        code = a.codes[col].to_numpy()
+        hit = np.flatnonzero(code > 0)
+        if not hit.size:
+            continue
+        texts = a.sources[a.sources["column"] == col].set_index("source_id")["source"]
+        piece = pd.DataFrame(
+            {
+                "column": col,
+                "value": _shorts(a.table[col].to_numpy(dtype=object)[hit]),
+                "source": texts.reindex(code[hit]).to_numpy(dtype=object),
+                "_at": hit * width + k,
+            }
+        )
+        pieces.append(
+            piece.groupby(["column", "value", "source"], sort=False, dropna=False)
+            .agg(walls=("_at", "size"), _at=("_at", "min"))
+            .reset_index()
+        )
+    if not pieces:
+        return pd.DataFrame(columns=["column", "value", "source", "walls"])
+    out = pd.concat(pieces, ignore_index=True).sort_values("_at", kind="stable")
+    return out.drop(columns="_at").reset_index(drop=True)
+
+
+def _compact_per_wall(a: Assumptions) -> pd.DataFrame:
+    """:func:`_assumptions_per_wall` of ``a.long()``, from the compact form: each input's
+    "column = value" joined across the inputs in their order, for the walls with a default."""
+    n = len(a.table)
+    text = np.full(n, "", dtype=object)
+    for col in a.columns:
+        hit = np.flatnonzero(a.codes[col].to_numpy() > 0)
+        if not hit.size:
+            continue
+        part = col + " = " + _shorts(a.table[col].to_numpy(dtype=object)[hit])
+        text[hit] = np.where(text[hit] == "", part, text[hit] + "; " + part)
+    keep = text != ""
+    if not keep.any():
+        return pd.DataFrame(columns=["wall_id", "row", "assumed"])
+    return pd.DataFrame(
+        {
+            "wall_id": a.table["wall_id"].to_numpy(dtype=object)[keep],
+            "row": a.table["row"].to_numpy()[keep],
+            "assumed": text[keep],
+        }
+    )
 
 
 def _short(value: Any) -> str:
