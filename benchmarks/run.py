@@ -295,12 +295,14 @@ def main(argv: list[str] | None = None) -> None:
         _table("wallscreen run end to end (each in its own process)", e2e)
         maps = map_rows([1_000, 10_000, 100_000], folder, browser)
         _table("The map", maps)
-    try:
-        from benchmarks.cluster import cluster_rows
+        try:
+            from benchmarks.cluster import cluster_rows
 
-        _table("The Monte Carlo (method.md §13) on a 2-worker Dask LocalCluster", cluster_rows(10_000, 1_000))
-    except ImportError:
-        print("\n(no Dask cluster rows: the extra wallscreen[dask] is not installed)")
+            _table(
+                "The Monte Carlo (method.md §13) on a 2-worker Dask LocalCluster", cluster_rows(10_000, 1_000)
+            )
+        except ImportError:
+            print("\n(no Dask cluster rows: the extra wallscreen[dask] is not installed)")
         print(f"\n{user.load()}")
         screens = user.screen_rows(200_000, folder)
         _table("screen() against pandas reading the same CSV (side by side)", screens)
