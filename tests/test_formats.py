@@ -80,3 +80,25 @@ def test_template_has_headers_notes_lists_and_a_guide(tmp_path: Path) -> None:
     )
     assert result.exit_code == 0, result.output
     assert list(pd.read_csv(tmp_path / "o" / "walls.csv").wall_id) == ["T-1"]
+
+
+def test_rows_of_blanks_and_white_space_are_layout_not_walls() -> None:
+    # common practice, no source: a spreadsheet row holding only spaces or tabs is an empty row;
+    # one with a number anywhere in it (even after blank cells) is a wall's row
+    import numpy as np
+
+    from screening.io.readers import _space_rows
+
+    cells = np.array(
+        [
+            ["W1", 3.0, None],
+            ["  ", None, "\t"],  # spaces and a tab: layout
+            ["", np.nan, " "],  # layout
+            [" ", None, 2.5],  # a number in the last column: a row to read
+            [None, None, None],  # empty (dropped before: not among the rows asked about)
+        ],
+        dtype=object,
+    )
+    empty = (cells == "") | pd.isna(cells)
+    rows = ~empty.all(axis=1)
+    assert _space_rows(cells, empty, rows).tolist() == [1, 2]

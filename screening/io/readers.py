@@ -149,14 +149,24 @@ def _frame_from_grid(grid: pd.DataFrame, header: int, path: Path) -> pd.DataFram
     cells = frame.drop(columns="row").to_numpy(dtype=object)
     empty = (cells == "") | pd.isna(cells)
     candidate = ~empty.all(axis=1)
-    maybe = np.flatnonzero(candidate & (empty | _spaces(cells)).all(axis=1))
-    candidate[maybe] = False
+    candidate[_space_rows(cells, empty, candidate)] = False
     return frame[candidate].reset_index(drop=True)
 
 
-def _spaces(cells: np.ndarray) -> np.ndarray:
-    """True where a cell is a string of white space only."""
-    return np.vectorize(lambda v: isinstance(v, str) and not v.strip(), otypes=[bool])(cells)
+def _space_rows(cells: np.ndarray, empty: np.ndarray, rows: np.ndarray) -> np.ndarray:
+    """The positions of the ``rows`` whose every cell is empty or white space only, looked at
+    column by column and only on the rows still in question (a wall's row drops out at its
+    first cell with content, usually its id)."""
+    left = np.flatnonzero(rows)
+    for c in range(cells.shape[1]):
+        if not left.size:
+            break
+        column = pd.Series(cells[left, c], dtype=object)
+        blank = empty[left, c].copy()
+        if pd.api.types.infer_dtype(column, skipna=True) in ("string", "mixed", "mixed-integer"):
+            blank |= column.str.strip().eq("").to_numpy(dtype=bool, na_value=False)
+        left = left[blank]
+    return left
 
 
 def _decode_unicode_text(data: bytes) -> tuple[str, str] | None:
@@ -364,8 +374,17 @@ def cells_as_shown(grid: pd.DataFrame) -> pd.DataFrame:
     for col in grid.columns:
         kind = pd.api.types.infer_dtype(grid[col], skipna=True)
         if kind not in ("floating", "integer", "string", "empty", "mixed-integer-float"):
-            grid[col] = grid[col].map(_as_shown)
+            # a column of text and numbers is "mixed": only its dates, times and booleans change
+            values = grid[col]
+            shown = values.map(type).isin(_SHOWN_TYPES).to_numpy()
+            if shown.any():
+                grid[col] = values.where(~shown, values[shown].map(_as_shown))
     return grid
+
+
+_SHOWN_TYPES = (bool, np.bool_, dt.datetime, dt.date, dt.time, dt.timedelta, pd.Timestamp, pd.Timedelta)
+"""The cell types :func:`_as_shown` turns into text (as their exact type: calamine returns these
+and no subclass of them)."""
 
 
 def _put_error_cells(grid: pd.DataFrame, cells: list[tuple[int, int, str]], top: int, left: int) -> None:
