@@ -198,13 +198,14 @@ def end_to_end_rows(sizes: list[int], folder: Path) -> list[dict[str, object]]:
 
 def map_rows(sizes: list[int], folder: Path, browser: bool) -> list[dict[str, object]]:
     """Map build time and HTML size; with Chromium, the time until the page has drawn."""
+    from screening.config import Config
     from screening.job import render_map, screen_file
 
     rows = []
     for n in sizes:
         csv = folder / f"map_{n}.csv"
         synthetic_register(n).to_csv(csv, index=False)
-        job = screen_file(csv)
+        job = screen_file(csv, config=Config(samples=0))  # the draws add the probability view
         out = folder / f"map_{n}"
         out.mkdir(exist_ok=True)
         t = _best(lambda job=job, out=out: render_map(job, out), repeat=1)

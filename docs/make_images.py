@@ -34,8 +34,9 @@ def map_screenshot(run: Path) -> None:
         page.wait_for_timeout(300)
         page.screenshot(path=str(OUT / "map_bands.png"))
         page.get_by_text("Worst case").click()
-        top = run / "walls.csv"
-        first = top.read_text().splitlines()[1].split(",")[0]
+        import pandas as pd
+
+        first = str(pd.read_csv(run / "walls.csv", dtype={"wall_id": str})["wall_id"].iloc[0])
         page.fill("#ws-search-input", first)
         page.press("#ws-search-input", "Enter")
         page.wait_for_timeout(600)

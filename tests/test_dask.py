@@ -49,7 +49,11 @@ def client() -> Any:
 
     with (
         distributed.LocalCluster(
-            n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0", silence_logs=logging.ERROR
+            n_workers=2,
+            threads_per_worker=1,
+            processes=True,
+            dashboard_address=":0",
+            silence_logs=logging.ERROR,
         ) as cluster,
         distributed.Client(cluster, set_as_default=False) as c,
     ):
@@ -300,7 +304,9 @@ def test_the_three_commands_of_the_readme_scheduler_worker_and_run_with_dask(tmp
         remote = _cli(*common, "-o", str(tmp_path / "cluster"), "--dask", address)
         assert local.exit_code == remote.exit_code == 1, remote.output  # the sample has rejected rows
         for name in ("results.csv", "walls.csv", "problems.csv"):
-            assert (tmp_path / "local" / name).read_bytes() == (tmp_path / "cluster" / name).read_bytes(), name
+            assert (tmp_path / "local" / name).read_bytes() == (tmp_path / "cluster" / name).read_bytes(), (
+                name
+            )
     finally:
         for proc in (worker, scheduler):
             proc.terminate()

@@ -294,3 +294,14 @@ def test_probability_view_colours_each_wall_by_its_class(sample_run: Path) -> No
         assert "P(failure | stands today)" in line.inner_text()
         page.screenshot(path=str(sample_run / "map_pf.png"))
         assert not errors
+
+
+def test_repeated_texts_are_written_once_as_codes() -> None:
+    from screening.outputs.webmap import coded_lines
+
+    lines = [["", "Drainage not recorded", "", "Drainage not recorded"], ["a", "", "b", "a"]]
+    codes, texts = coded_lines(lines)
+    assert texts[0] == ""  # code 0 is the empty text, which the page skips
+    assert [[texts[c] for c in row] for row in codes] == lines
+    assert len(texts) == 4  # "", "Drainage not recorded", "a", "b": each once
+    assert coded_lines([[]]) == ([[]], [""])

@@ -75,7 +75,9 @@ def test_bad_map_assets_dir_fails_before_any_work(tmp_path: Path, command: str) 
 def test_tile_template_without_placeholders_is_refused(tmp_path: Path) -> None:
     reg = _csv(tmp_path, [worked_wall("A", 2.0)])
     out = tmp_path / "out"
-    result = runner.invoke(app, ["run", str(reg), "--out", str(out), "--map-tiles", "https://tiles.example/x.png"])
+    result = runner.invoke(
+        app, ["run", str(reg), "--out", str(out), "--map-tiles", "https://tiles.example/x.png"]
+    )
     assert result.exit_code == EXIT_NOTHING_SCREENED and "{z}" in result.output
     assert not out.exists()
 
@@ -162,7 +164,13 @@ def test_nothing_user_facing_names_a_development_file() -> None:
 
     walls = [
         {"wall_id": "A", "height_m": 3.0, "base_width_m": 2.0, "top_width_m": 0.6},
-        {"wall_id": "B", "height_m": 3.0, "base_width_m": 2.0, "top_width_m": 0.6, "wall_unit_weight_kn_m3": 21.0},
+        {
+            "wall_id": "B",
+            "height_m": 3.0,
+            "base_width_m": 2.0,
+            "top_width_m": 0.6,
+            "wall_unit_weight_kn_m3": 21.0,
+        },
     ]
     run = evaluate(pd.DataFrame(walls))
     for text in run.prepared.assumptions.long()["source"].astype(str):

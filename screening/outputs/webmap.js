@@ -105,12 +105,13 @@
       return CASE_NAMES[c] + " " + (p === null || Number.isNaN(p) ? "–" : fmt(p, 3));
     });
     var text = "P(failure | stands today): " + parts.join(", ");
-    if (D.mn[i]) text += "; measure next: " + D.mn[i];
+    if (D.mn[i]) text += "; measure next: " + D.mnText[D.mn[i]];
     d.appendChild(el("div", text, "ws-pf"));
   }
   function ownerNotes(d, i) {
     if (!D.notes) return;
-    D.notes.forEach(function (lines) { if (lines[i]) d.appendChild(el("div", lines[i], "note")); });
+    // codes into notesText, 0 the empty text
+    D.notes.forEach(function (lines) { if (lines[i]) d.appendChild(el("div", D.notesText[lines[i]], "note")); });
   }
   function shape(i, st) {
     var pts = latlngs(i);

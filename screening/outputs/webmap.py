@@ -97,10 +97,12 @@ def probability_data(w: pd.DataFrame) -> dict[str, Any]:
     worst = w[cols].to_numpy(dtype=float)
     worst = np.where(np.isnan(worst).all(axis=1), np.nan, np.nanmax(np.nan_to_num(worst, nan=-1.0), axis=1))
     mn = w["measure_next"] if "measure_next" in w else pd.Series([""] * len(w))
+    (mn_codes,), mn_text = coded_lines([[("" if pd.isna(v) else str(v)) for v in mn]])
     return {
         "pf": [_rounded(w[c], 4) for c in cols],
         "pfCls": pf_class(worst, w.get("data_inconsistent", pd.Series([False] * len(w)))).tolist(),
-        "mn": [("" if pd.isna(v) else str(v)) for v in mn],
+        "mn": mn_codes,
+        "mnText": mn_text,
     }
 
 
@@ -133,6 +135,16 @@ def _codes(values: Any) -> tuple[list[int], list[str]]:
     """Small integer codes and their names (the page looks the words up)."""
     codes, names = pd.factorize(pd.Series(np.asarray(values, dtype=object)).fillna(""), sort=True)
     return codes.tolist(), [str(n) for n in names]
+
+
+def coded_lines(lines: list[list[str]]) -> tuple[list[list[int]], list[str]]:
+    """Lists of texts (one per wall each) as codes into one table of the distinct texts, code 0
+    the empty text: the same few sentences for thousands of walls are written once."""
+    n = len(lines[0]) if lines else 0
+    flat = np.concatenate([[""], *[np.asarray(line, dtype=object) for line in lines]]) if lines else [""]
+    codes, names = pd.factorize(pd.Series(flat, dtype=object).fillna(""))
+    codes = codes[1:]
+    return [codes[k * n : (k + 1) * n].tolist() for k in range(len(lines))], [str(t) for t in names]
 
 
 def map_data(
@@ -268,23 +280,27 @@ def owner_data(w: pd.DataFrame, by_case: dict[str, pd.DataFrame], near_toe_m: fl
             for c in CASES
         ]
 
-    annex_d = [
-        (by_case[c]["bearing_method"].astype(str).to_numpy() == "annex_d").tolist()
+    annex_d = [  # 1/0, not true/false: a few bytes less per wall
+        (by_case[c]["bearing_method"].astype(str).to_numpy() == "annex_d").astype(int).tolist()
         if "bearing_method" in by_case[c]
-        else [False] * len(w)
+        else [0] * len(w)
         for c in CASES
     ]
+    notes, notes_text = coded_lines(owner_notes(w))
     return {
-        "notes": owner_notes(w),
+        "notes": notes,
+        "notesText": notes_text,
         "suspect": w["suspect_inputs"].fillna("").astype(str).tolist()
         if "suspect_inputs" in w
         else [""] * len(w),
-        "nearToe": [
+        "nearToe": [  # 1/0 per case
             (
                 near_toe(by_case[c]["resultant_from_toe_m"], near_toe_m)
                 if near_toe_m > 0
                 else np.zeros(len(w), bool)
-            ).tolist()
+            )
+            .astype(int)
+            .tolist()
             for c in CASES
         ],
         "nearToeText": near_toe_words(near_toe_m),
