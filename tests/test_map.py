@@ -305,3 +305,13 @@ def test_repeated_texts_are_written_once_as_codes() -> None:
     assert [[texts[c] for c in row] for row in codes] == lines
     assert len(texts) == 4  # "", "Drainage not recorded", "a", "b": each once
     assert coded_lines([[]]) == ([[]], [""])
+
+
+def test_reason_lines_come_back_whole_from_their_clause_codes() -> None:
+    from screening.outputs.webmap import _coded_reasons
+
+    reasons = pd.Series(["a; condition 4", "condition 4", "", None, "x;y; a"])
+    got = _coded_reasons(reasons)
+    back = ["; ".join(got["reasonText"][c] for c in codes) for codes in got["reason"]]
+    assert back == ["a; condition 4", "condition 4", "", "", "x;y; a"]
+    assert got["reasonText"].count("condition 4") == 1

@@ -60,7 +60,8 @@
     d.appendChild(h);
     var bandText = S.bandText[S.bands.indexOf(bandOf(i))];
     d.appendChild(el("div", bandText + " (score " + fmt(D.score[i], 1) + ", rank " + D.rank[i] + ")"));
-    d.appendChild(el("div", D.reason[i], "reason"));
+    // the reason's clauses are codes into reasonText, joined as the reason line joins them
+    d.appendChild(el("div", D.reason[i].map(function (c) { return D.reasonText[c]; }).join("; "), "reason"));
     var t = el("table"); var head = el("tr");
     ["case", "utilisation", "governing", "e [m] / B/6", "toe / allow. [kPa]", "FoS sl.", "FoS ot."]
       .forEach(function (x) { head.appendChild(el("th", x)); });

@@ -147,6 +147,17 @@ def coded_lines(lines: list[list[str]]) -> tuple[list[list[int]], list[str]]:
     return [codes[k * n : (k + 1) * n].tolist() for k in range(len(lines))], [str(t) for t in names]
 
 
+def _coded_reasons(reasons: pd.Series) -> dict[str, Any]:
+    """The reason lines as codes of their clauses (split at "; ", joined back the same way by
+    the page): the same clauses ("condition 4", "railway below") recur across thousands of walls."""
+    clauses = reasons.fillna("").astype(str).str.split("; ", regex=False)
+    lengths = clauses.str.len().to_numpy()
+    flat = np.concatenate(clauses.to_numpy()) if len(clauses) else np.zeros(0, dtype=object)
+    codes, texts = pd.factorize(pd.Series(flat, dtype=object))
+    per_wall = [part.tolist() for part in np.split(codes, np.cumsum(lengths)[:-1])] if len(lengths) else []
+    return {"reason": per_wall, "reasonText": [str(t) for t in texts]}
+
+
 def map_data(
     walls: pd.DataFrame,
     geometry: np.ndarray,
@@ -187,7 +198,7 @@ def map_data(
         "score": _rounded(w["priority_score"], 1),
         "band": band,
         "bandNames": band_names,
-        "reason": w["reason"].astype(str).tolist(),
+        **_coded_reasons(w["reason"]),
         "worst": pd.Categorical(w["worst_case"], categories=CASES).codes.tolist(),
         "b6": _rounded(w["base_width_m"] / 6.0, 3),
         "qa": _rounded(w["allowable_bearing_kpa"], 0),
