@@ -227,6 +227,13 @@ def test_a_wall_rejected_this_time_is_carried_with_its_previous_band(tmp_path: P
     head = next(i for i, t in enumerate(text) if t.startswith("Not re-screened this run (1)"))
     assert "BAD" in text[head + 1] and f"was {band}, rank 1 in the last run" in text[head + 1]
     assert "height_m 0.004" in text[head + 1]
+    import openpyxl
+
+    # one line each: a cell without a format of its own takes its column's, which wraps (the
+    # names below), and a wrapped cell in a row of one line's height is drawn over the next row
+    sheet = openpyxl.load_workbook(out / "report.xlsx")["Look first"]
+    line = next(r for r in sheet.iter_rows() if r[1].value == "BAD" and r[2].value)
+    assert line[2].has_style and not line[2].alignment.wrap_text
     page = (out / "map.html").read_text(encoding="utf-8")
     assert "Not re-screened this run (1)" in page
     assert "BAD: not re-screened: height_m 0.004" in page

@@ -647,13 +647,15 @@ def _carried_block(
         f"Not re-screened this run ({len(carried)}): rows rejected, carried from the last run",
         out.f.bold,
     )
+    # one line each, not wrapped: the column's own format wraps (the names below), and a wrapped
+    # line in a row of one line's height is drawn over the next row
     for k, r in enumerate(carried.head(shown).itertuples(index=False), start=row + 1):
-        sheet.write_string(k, 1, str(r.wall_id))
-        sheet.write_string(k, 2, str(r.carried))
+        sheet.write_string(k, 1, str(r.wall_id), out.f.top)
+        sheet.write_string(k, 2, str(r.carried), out.f.top)
     last = row + min(len(carried), shown)
     if len(carried) > shown:
         last += 1
-        sheet.write_string(last, 2, f"… {len(carried) - shown} more on 'Changes since last run'")
+        sheet.write_string(last, 2, f"… {len(carried) - shown} more on 'Changes since last run'", out.f.top)
     return last + 2
 
 
