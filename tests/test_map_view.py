@@ -211,3 +211,44 @@ def test_page_says_so_when_the_map_library_cannot_be_loaded(case_run: Path) -> N
         assert "--map-assets-dir" in text and "leaflet.js" in text
         assert note.is_visible()
         page.screenshot(path=str(case_run / "map-no-library.png"))
+
+
+@pytest.mark.browser
+def test_an_open_popup_is_not_under_the_info_box(tmp_path: Path) -> None:
+    # the info box is a control above the map's panes: with walls carried from the last run it is
+    # tall, and would cover a popup; while a popup is open it keeps its title and caution only
+    out, history = tmp_path / "out", tmp_path / "history.gpkg"
+    walls = [worked_wall(f"W{k}", 2.0, lat=53.70 + k * 1e-3, lon=-1.90) for k in range(8)]
+    for k, rows in enumerate((walls, [dict(w, height_m=0.004) if i < 6 else w for i, w in enumerate(walls)])):
+        pd.DataFrame(rows).to_csv(tmp_path / f"r{k}.csv", index=False)
+        result = runner.invoke(
+            app, ["run", str(tmp_path / f"r{k}.csv"), "-o", str(out), "--history", str(history)]
+        )
+        assert result.exit_code in (0, 1), result.output
+    with browser_page() as page:
+        _open(page, out)
+        tall = page.locator("#ws-info").bounding_box()
+        page.fill("#ws-search-input", "W7")
+        page.press("#ws-search-input", "Enter")
+        popup = page.locator(".leaflet-popup-content-wrapper")
+        popup.wait_for()
+        page.wait_for_timeout(500)  # the pan to the popup
+        info, box = page.locator("#ws-info").bounding_box(), popup.bounding_box()
+        assert tall and info and box
+
+        def overlap(a: dict, b: dict) -> bool:
+            return not (
+                a["y"] + a["height"] <= b["y"]
+                or b["y"] + b["height"] <= a["y"]
+                or a["x"] + a["width"] <= b["x"]
+                or b["x"] + b["width"] <= a["x"]
+            )
+
+        assert box["y"] >= 0  # the popup whole in the window (it pans from where the map arrived)
+        assert overlap(tall, box)  # the whole box would have covered the popup
+        assert not overlap(info, box), (info, box)
+        assert page.locator("#ws-info .ws-caution").is_visible()
+        page.locator(".leaflet-popup-close-button").click()
+        page.wait_for_timeout(300)
+        again = page.locator("#ws-info").bounding_box()
+        assert again and again["height"] == pytest.approx(tall["height"], abs=1)

@@ -19,6 +19,10 @@
   // the probability view exists only when the run drew samples (method.md §13)
   if (D.pfCls) views.push(["Probability of failure", "pf"]);
   var renderer = S.canvas ? L.canvas({padding: 0.5}) : undefined;
+  // the info box sits above the map's panes (popups included): while a popup is open it keeps only
+  // its title and the caution, so that it never hides the popup's figures
+  map.on("popupopen", function () { var b = document.getElementById("ws-info"); if (b) b.classList.add("ws-quiet"); });
+  map.on("popupclose", function () { var b = document.getElementById("ws-info"); if (b) b.classList.remove("ws-quiet"); });
 
   function el(tag, text, cls) {
     var e = document.createElement(tag);
@@ -232,8 +236,9 @@
       if (found.msg) { msg.textContent = found.msg; return; }
       msg.textContent = "";
       var layer = built[current[0]].byId[found.id];
-      if (layer.getLatLng) map.setView(layer.getLatLng(), 18);
-      else map.fitBounds(layer.getBounds(), {maxZoom: 18});
+      // no animation: the popup pans itself into view from where the map has arrived
+      if (layer.getLatLng) map.setView(layer.getLatLng(), 18, {animate: false});
+      else map.fitBounds(layer.getBounds(), {maxZoom: 18, animate: false});
       layer.openPopup();
     });
     return d;
