@@ -53,7 +53,8 @@ def sheet_figure(run: Path) -> None:
     first = str((cracked if len(cracked) else walls)["wall_id"].iloc[0])  # the highest-ranked cracked wall
 
     page = (run / "sheets" / sheet_filename(first)).read_text()
-    data = re.search(r"src='data:image/png;base64,([^']+)'", page).group(1)
+    # the sheet's first figure: the section in the three cases
+    data = re.search(r"""src=["']data:image/png;base64,([^"']+)["']""", page).group(1)
     (OUT / "sheet_figure.png").write_bytes(base64.b64decode(data))
 
 
