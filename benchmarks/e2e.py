@@ -3,7 +3,7 @@
 ``python -m benchmarks.e2e REGISTER OUT_DIR`` prints one JSON line: seconds per step
 and the process's peak resident memory. The register is screened with ``samples = 0``: the
 figures of the pipeline (the Monte Carlo of method.md §13 has its own benchmark); a step the
-workbook's worker process runs beside is named without its " (and the workbook)".
+workbook's worker process runs beside is named without its ``BESIDE_WORKBOOK``.
 """
 
 from __future__ import annotations
@@ -15,7 +15,7 @@ import time
 from pathlib import Path
 
 from screening.config import Config
-from screening.job import screen_file, write_outputs
+from screening.job import BESIDE_WORKBOOK, screen_file, write_outputs
 
 
 def _peak_mb() -> float:
@@ -37,7 +37,7 @@ def main() -> None:
     write_outputs(job, out, progress=lambda name: marks.append((name, time.perf_counter())))
     end = time.perf_counter()
     for (name, t0), (_, t1) in zip(marks, [*marks[1:], ("end", end)], strict=True):
-        times[name.removesuffix(" (and the workbook)")] = t1 - t0
+        times[name.removesuffix(BESIDE_WORKBOOK)] = t1 - t0
     times["total"] = end - start
     peak_mb = _peak_mb()
     sizes = {p.name: p.stat().st_size for p in out.iterdir() if p.is_file()}

@@ -449,6 +449,9 @@ def write_outputs(
     return outputs
 
 
+BESIDE_WORKBOOK = " (and the workbook)"
+"""Added to the name of each step written while the workbook's worker process runs."""
+
 WORKBOOK_PROCESS_FROM = 20_000
 """Walls from which the workbook is written in a worker process of its own while this process
 writes the other outputs (below, starting the worker costs more than it saves)."""
@@ -489,9 +492,7 @@ def _write_all(
         # spawn, not fork: a forked child would carry (and count again) the whole run's memory
         with cf.ProcessPoolExecutor(1, mp_context=mp.get_context("spawn")) as pool:
             workbook = pool.submit(_write_workbook_call, workbook_arguments(job, out / "report.xlsx"))
-            outputs.update(
-                _write_the_rest(job, out, lambda name: step(f"{name} (and the workbook)"), map_options)
-            )
+            outputs.update(_write_the_rest(job, out, lambda name: step(name + BESIDE_WORKBOOK), map_options))
             step("workbook")
             outputs["workbook"] = workbook.result()
     outputs["run"] = write_text_atomic(

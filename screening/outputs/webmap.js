@@ -21,8 +21,10 @@
   var renderer = S.canvas ? L.canvas({padding: 0.5}) : undefined;
   // the info box sits above the map's panes (popups included): while a popup is open it keeps only
   // its title and the caution, so that it never hides the popup's figures
-  map.on("popupopen", function () { var b = document.getElementById("ws-info"); if (b) b.classList.add("ws-quiet"); });
-  map.on("popupclose", function () { var b = document.getElementById("ws-info"); if (b) b.classList.remove("ws-quiet"); });
+  map.on("popupopen popupclose", function (ev) {
+    var box = document.getElementById("ws-info");
+    if (box) box.classList.toggle("ws-quiet", ev.type === "popupopen");
+  });
 
   function el(tag, text, cls) {
     var e = document.createElement(tag);
