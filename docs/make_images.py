@@ -8,8 +8,6 @@ GeoPackage as QGIS draws it).
 
 from __future__ import annotations
 
-import base64
-import re
 import shutil
 import subprocess
 import sys
@@ -52,10 +50,10 @@ def sheet_figure(run: Path) -> None:
     cracked = walls[walls["crack_height_m"].notna()]
     first = str((cracked if len(cracked) else walls)["wall_id"].iloc[0])  # the highest-ranked cracked wall
 
-    page = (run / "sheets" / sheet_filename(first)).read_text()
-    # the sheet's first figure: the section in the three cases
-    data = re.search(r"""src=["']data:image/png;base64,([^"']+)["']""", page).group(1)
-    (OUT / "sheet_figure.png").write_bytes(base64.b64decode(data))
+    # the sheet's first figure (SVG): the section in the three cases, as Chromium draws it
+    with browser_page() as page:
+        page.goto((run / "sheets" / sheet_filename(first)).as_uri())
+        page.locator("img.fig").first.screenshot(path=str(OUT / "sheet_figure.png"))
 
 
 def workbook_render(run: Path) -> None:

@@ -127,7 +127,7 @@ def test_sheet_has_no_external_resources(sheet_run: Path) -> None:
         page = path.read_text()
         assert not re.search(r'(src|href)\s*=\s*["\'](https?:)?//', page)
         assert "url(http" not in page and "@import" not in page
-        assert 'src="data:image/png;base64,' in page or "src='data:image/png;base64," in page
+        assert 'src="data:image/svg+xml;base64,' in page or "src='data:image/svg+xml;base64," in page
 
 
 def test_explain_command_names_unknown_and_rejected_walls(tmp_path: Path) -> None:
@@ -184,7 +184,7 @@ def test_the_page_content_is_plain_data(tmp_path: Path) -> None:
         return [node] if isinstance(node, str) else []
 
     found = strings(context)
-    assert len(found) > 150 and context["figure"].startswith("data:image/png;base64,")
+    assert len(found) > 150 and context["figure"].startswith("data:image/svg+xml;base64,")
     assert context["cases"][1]["crack"] is not None  # the crack plane is checked when blocked
     assert not [s for s in found if "<" in s or ">" in s]
 
@@ -210,7 +210,7 @@ def test_sheet_shows_the_draws_with_samples_on(sheet_run: Path) -> None:
     # the default run draws samples (method.md §13): the figure and the plain-words caption are there
     page = (sheet_run / "sheets" / sheet_filename("PLAIN")).read_text(encoding="utf-8")
     block = page.split('<figure class="draws">', 1)[1].split("</figure>", 1)[0]
-    assert 'src="data:image/png;base64,' in block
+    assert 'src="data:image/svg+xml;base64,' in block
     assert "conditional on the model" in block and "not a substitute for inspection" in block
 
 

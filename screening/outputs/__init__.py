@@ -1,7 +1,7 @@
 """The outputs a person opens: the workbook, the web map, the calculation sheets, the GIS layer.
 
 Each module takes finished tables and writes one file atomically; none computes engineering
-results. This package's own namespace stays light (no matplotlib, folium or xlsxwriter at
+results. This package's own namespace stays light (no folium or xlsxwriter at
 import), so that the names shared between outputs live here.
 """
 

@@ -2,8 +2,8 @@
 
 The sheet is generated from the engine's own output for that wall (``run_cases``
 with ``details=True``), so every number on it is a number the screening used.
-Figures are drawn with matplotlib and embedded as PNG data; the page loads no
-external resource and prints to PDF from any browser.
+Figures are written as SVG (:mod:`screening.outputs.svgplot`) and embedded as data; the page
+loads no external resource and prints to PDF from any browser.
 
 The page is ``sheet.html.j2`` (package data, autoescaped); :func:`sheet_context` builds
 its content as plain data in steps that follow the sheet's sections (inputs, section and
@@ -12,9 +12,7 @@ K_a, the figure, each case with its crack plane, the run), and holds no markup.
 
 from __future__ import annotations
 
-import base64
 import functools
-import io
 import math
 import multiprocessing as mp
 import os
@@ -29,10 +27,6 @@ import jinja2
 import markupsafe
 import numpy as np
 import pandas as pd
-from matplotlib.axes import Axes
-from matplotlib.figure import Figure
-from matplotlib.patches import Polygon
-from matplotlib.ticker import MaxNLocator
 
 from screening import __version__
 from screening.assumed import Assumptions
@@ -41,6 +35,7 @@ from screening.core import critical
 from screening.core.engine import DERIVED_INPUTS, ENGINE_INPUTS, decode, run_cases
 from screening.io.writers import write_text_atomic
 from screening.outputs import sheet_filename
+from screening.outputs.svgplot import Figure, Panel
 from screening.outputs.workbook import CAUTION
 from screening.prepare import Prepared
 from screening.priority import LEAN_CAUTION, near_toe, near_toe_words
@@ -122,27 +117,31 @@ class _Outline:
         return x * c - z * s, x * s + z * c
 
 
-def _draw_wall(ax: Axes, w: _Outline, hw: float) -> None:
+PT = 120 / 72
+"""Pixels per point: the figures keep the line widths and text sizes they had as 120-dpi PNGs."""
+
+
+def _draw_wall(ax: Panel, w: _Outline, hw: float) -> None:
     """The leaned section, the soil it carries, the ground, the water level and a known crack."""
     b, h, r, back, rot = w.b, w.h, w.r, w.back, w.rot
     body = [rot(0, 0), rot(b, 0), rot(b - back, h), rot(w.f, h)]
-    ax.add_patch(Polygon(body, closed=True, fc="#C9C2B8", ec="#333333", lw=1.2, label="wall"))
+    ax.polygon(body, "#C9C2B8", "#333333", 1.2 * PT, label="wall")
     if back > 0 and r > 0:
         wedge = [rot(b, 0), rot(b, r), rot(b - back * r / h, r)]
-        ax.add_patch(Polygon(wedge, closed=True, fc="#E6D9B8", ec="#8A7A50", lw=0.8, label="soil carried"))
-    ax.plot([b, b + 0.8 * b + 1], [r, r], color="#8A7A50", lw=1.0)
-    ax.plot([b, b], [0, r], color="#8A7A50", lw=0.8, ls=":")
+        ax.polygon(wedge, "#E6D9B8", "#8A7A50", 0.8 * PT, label="soil carried")
+    ax.line([b, b + 0.8 * b + 1], [r, r], "#8A7A50", 1.0 * PT)
+    ax.line([b, b], [0, r], "#8A7A50", 0.8 * PT, "dotted")
     if hw > 0:
-        ax.plot([b, b + 0.8 * b + 1], [hw, hw], color="#1F5FBF", lw=1.4, ls="--", label="water level")
+        ax.line([b, b + 0.8 * b + 1], [hw, hw], "#1F5FBF", 1.4 * PT, "dashed", label="water level")
     if not math.isnan(w.crack):
         bc = b - (w.f + back) * w.crack / h
         fc = w.f * w.crack / h
-        ends = zip(rot(fc, w.crack), rot(fc + bc, w.crack), strict=True)
-        ax.plot(*ends, color="#B2182B", lw=2.0, label="known crack")
+        ends = list(zip(rot(fc, w.crack), rot(fc + bc, w.crack), strict=True))
+        ax.line(ends[0], ends[1], "#B2182B", 2.0 * PT, label="known crack")
 
 
 def _draw_back_pressures(
-    ax: Axes, w: _Outline, d: dict[str, np.ndarray], i: int, scale: float, gamma_w: float
+    ax: Panel, w: _Outline, d: dict[str, np.ndarray], i: int, scale: float, gamma_w: float
 ) -> None:
     """Effective earth pressure and water pressure on the virtual back (x = B)."""
     b, r = w.b, w.r
@@ -151,38 +150,36 @@ def _draw_back_pressures(
     zs = np.array([r, hw, 0.0]) if hw > 0 else np.array([r, 0.0])
     sv = np.where(zs >= hw, g * (r - zs), g * (r - hw) + (gs - gamma_w) * (hw - zs))
     pe = ka * (sv + q)
-    ax.fill_betweenx(zs, b, b + pe * scale, color="#8A7A50", alpha=0.35, lw=0, label="earth pressure")
+    ax.fill_betweenx(list(zs), [b] * len(zs), list(b + pe * scale), "#8A7A50", 0.35, label="earth pressure")
     if hw > 0:
         pw = gamma_w * (hw - np.array([hw, 0.0]))
         ax.fill_betweenx(
-            np.array([hw, 0.0]),
-            b + pe[-2:] * scale,
-            b + (pe[-2:] + pw) * scale,
-            color="#1F5FBF",
-            alpha=0.35,
-            lw=0,
+            [hw, 0.0],
+            list(b + pe[-2:] * scale),
+            list(b + (pe[-2:] + pw) * scale),
+            "#1F5FBF",
+            0.35,
             label="water pressure",
         )
 
 
-def _draw_resultant(ax: Axes, w: _Outline, x_r: float) -> None:
+def _draw_resultant(ax: Panel, w: _Outline, x_r: float) -> None:
     """The middle-third marks on the base and the resultant's arrow to where it meets the base."""
     b, h = w.b, w.h
     for xm in (b / 3, 2 * b / 3):
-        ax.plot([xm, xm], [-0.04 * h, 0.04 * h], color="#000000", lw=1.0)
+        ax.line([xm, xm], [-0.04 * h, 0.04 * h], "#000000", 1.0 * PT)
     if np.isfinite(x_r):
-        arrow = {"arrowstyle": "-|>", "color": "#000000", "lw": 1.8}
-        ax.annotate("", xy=(x_r, 0), xytext=(x_r + 0.15 * h, 0.45 * h), arrowprops=arrow)
-        ax.text(x_r + 0.15 * h, 0.47 * h, "R", color="#000000", ha="left")
+        ax.arrow((x_r + 0.15 * h, 0.45 * h), (x_r, 0.0), "#000000", 1.8 * PT)
+        ax.text(x_r + 0.15 * h, 0.47 * h, "R", size=10 * PT)
 
 
-def _draw_base_pressure(ax: Axes, w: _Outline, d: dict[str, np.ndarray], i: int, x_r: float) -> None:
+def _draw_base_pressure(ax: Panel, w: _Outline, d: dict[str, np.ndarray], i: int, x_r: float) -> None:
     """The contact pressure under the base: trapezoid, no-tension triangle, or none at all."""
     b, h = w.b, w.h
     toe, heel = float(d["toe_pressure_kpa"][i]), float(d["heel_pressure_kpa"][i])
     bscale = 0.25 * h / max(np.nanmax([v for v in (toe, heel) if np.isfinite(v)] + [1.0]), 1.0)
     if not (np.isfinite(toe) and np.isfinite(heel)):
-        ax.text(0, -0.12 * h, "resultant outside the base", fontsize=9, color="#B2182B")
+        ax.text(0, -0.12 * h, "resultant outside the base", size=9 * PT, color="#B2182B")
         return
     if str(d["state"][i]) == "within_middle_third":
         xs, qs = [0, b], [toe, heel]
@@ -191,53 +188,26 @@ def _draw_base_pressure(ax: Axes, w: _Outline, d: dict[str, np.ndarray], i: int,
     else:
         xs, qs = [max(b - 3 * (b - x_r), 0), b], [0, heel]
     below = [-v * bscale for v in qs]
-    ax.fill_between(xs, [0, 0], below, color="#7B3294", alpha=0.35, lw=0, label="base pressure")
+    ax.fill_between(xs, [0, 0], below, "#7B3294", 0.35, label="base pressure")
     label = (
         str(d["_near_toe_text"][i]) if "_near_toe_text" in d and d["_near_toe_text"][i] else f"{toe:.0f} kPa"
     )
-    ax.text(0, -toe * bscale - 0.05 * h, label, fontsize=8, ha="left", va="top")
+    ax.text(0, -toe * bscale - 0.05 * h, label, size=8 * PT, hang=True)
 
 
-def _frame(ax: Axes, w: _Outline, case: str, hw: float, utilisation: float) -> None:
-    """Title, equal scales and the same window for every case."""
-    b, h = w.b, w.h
-    ax.set_title(f"{case}: h_w = {hw:.2f} m, utilisation {_fmt(utilisation)}", fontsize=9)
-    ax.set_aspect("equal")
-    ax.set_xlim(-0.3 * h - 0.3, b + 0.8 * b + 1.2)
-    ax.set_ylim(-0.45 * h, 1.08 * h)
-    ax.axhline(0, color="#555555", lw=0.6)
-    ax.set_xlabel("x from the toe [m]")
-
-
-def _legend(fig: Figure, axes: Iterable[Axes]) -> None:
-    """One legend under the three panels, each label once, in the order first drawn."""
-    handles, labels = [], []
-    for ax in axes:
-        for hnd, lab in zip(*ax.get_legend_handles_labels(), strict=True):
-            if lab not in labels:
-                handles.append(hnd)
-                labels.append(lab)
-    fig.legend(handles, labels, loc="lower center", ncol=len(labels), fontsize=8, frameon=False)
-
-
-def _draw_old_wall_marks(ax: Axes, w: _Outline, d: dict[str, np.ndarray], i: int) -> None:
+def _draw_old_wall_marks(ax: Panel, w: _Outline, d: dict[str, np.ndarray], i: int) -> None:
     """The governing bed joint of this case (method.md §8) across the leaned section, and the
     critical water height (§9) behind the wall."""
     z = float(d["joint_height_m"][i]) if "joint_height_m" in d else math.nan
     if np.isfinite(z) and 0 < z < w.h:
         bc = w.b - (w.f + w.back) * z / w.h
         fc = w.f * z / w.h
-        ends = zip(w.rot(fc, z), w.rot(fc + bc, z), strict=True)
-        ax.plot(*ends, color="#E08214", lw=2.0, ls="-.", label="governing bed joint")
+        ends = list(zip(w.rot(fc, z), w.rot(fc + bc, z), strict=True))
+        ax.line(ends[0], ends[1], "#E08214", 2.0 * PT, "dashdot", label="governing bed joint")
     hc = float(d["_critical_water_m"][i]) if "_critical_water_m" in d else math.nan
     if np.isfinite(hc) and hc > 0:
-        ax.plot(
-            [w.b, w.b + 0.8 * w.b + 1],
-            [hc, hc],
-            color="#1F5FBF",
-            lw=1.0,
-            ls=":",
-            label="critical water level",
+        ax.line(
+            [w.b, w.b + 0.8 * w.b + 1], [hc, hc], "#1F5FBF", 1.0 * PT, "dotted", label="critical water level"
         )
 
 
@@ -254,34 +224,49 @@ def _figure_alt(d: dict[str, np.ndarray], j: dict[str, int]) -> str:
     return "; ".join(words)
 
 
-def _png_data_uri(fig: Figure) -> str:
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=120)  # about the pixels of the earlier 13.5 in at 80 dpi
-    return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii")
+FIGURE_WIDTH = 1080.0
+"""The section figure's width [px]: 9 in at 120 dpi, so that printed across A4 (186 mm) its
+8-point labels stay at 6.5 points or more."""
 
 
 def _figure(wall: pd.Series, d: dict[str, np.ndarray], j: dict[str, int], cfg: Config) -> str:
-    """Section, pressures, resultant and base pressure for each case, side by side (PNG data URI)."""
+    """Section, pressures, resultant and base pressure for each case, side by side (SVG data URI).
+
+    The three panels share one window and one scale (equal in x and z), so the cases compare
+    at a glance; the panel height follows the wall's proportions."""
     w = _Outline.of(wall)
-    # 9 in wide: printed across A4 (186 mm) the 8-point labels stay at 6.5 points or more
-    fig = Figure(figsize=(9.0, 3.9))  # no pyplot: no global state, no GUI backend
-    axes = fig.subplots(1, 3, sharey=True)
     pmax = max(float(np.nanmax([d["_p_base"][i] + d["_w_base"][i] for i in j.values()])), 1.0)
     scale = 0.45 * max(w.b, w.h * 0.5) / pmax  # metres of drawing per kPa
-    for ax, case in zip(axes, CASES, strict=True):
+    xlim = (-0.3 * w.h - 0.3, w.b + 0.8 * w.b + 1.2)
+    ylim = (-0.45 * w.h, 1.08 * w.h)
+    left, gap, top, size = 80.0, 14.0, 28.0, 8 * PT
+    width = (FIGURE_WIDTH - left - 10.0 - 2 * gap) / 3
+    px_per_m = min(width / (xlim[1] - xlim[0]), 330.0 / (ylim[1] - ylim[0]))
+    width, height = (xlim[1] - xlim[0]) * px_per_m, (ylim[1] - ylim[0]) * px_per_m
+    fig = Figure(FIGURE_WIDTH, 0.0)
+    for k, case in enumerate(CASES):
         i = j[case]
         hw = float(d["water_height_m"][i])
         x_r = float(d["resultant_from_toe_m"][i])
+        ax = fig.panel(left + k * (width + gap), top, width, height, xlim, ylim)
         _draw_wall(ax, w, hw)
         _draw_back_pressures(ax, w, d, i, scale, cfg.gamma_w_kn_m3)
         _draw_resultant(ax, w, x_r)
         _draw_base_pressure(ax, w, d, i, x_r)
         _draw_old_wall_marks(ax, w, d, i)
-        _frame(ax, w, case, hw, float(d["utilisation"][i]))
-    axes[0].set_ylabel("z from the underside of the base [m]")
-    _legend(fig, axes)
-    fig.subplots_adjust(left=0.07, right=0.99, top=0.92, bottom=0.24, wspace=0.06)
-    return _png_data_uri(fig)
+        ax.hline(0.0, "#555555", 0.6 * PT)
+        ax.frame(
+            xlabel="x from the toe [m]",
+            ylabel="z from the underside of the base [m]" if k == 0 else "",
+            title=f"{case}: h_w = {hw:.2f} m, utilisation {_fmt(float(d['utilisation'][i]))}",
+            yticks=8,
+            ytick_labels=k == 0,
+            size=size,
+        )
+    legend_top = top + height + 12 + 3.4 * size
+    rows = fig.legend(FIGURE_WIDTH / 2, legend_top, size)
+    fig.height = legend_top + rows + 4
+    return fig.data_uri(_figure_alt(d, j))
 
 
 # ---------------------------------------------------------------- the page's content
@@ -664,6 +649,14 @@ def draws_alt(case: str, driver: str) -> str:
     return f"histogram of the ultimate utilisation, {case}, over the draws, and {against}"
 
 
+def _padded(lo: float, hi: float, pad: float = 0.05) -> tuple[float, float]:
+    """A data range with ``pad`` of its span on each side (half a unit around a single value)."""
+    if not (math.isfinite(lo) and math.isfinite(hi)):
+        return (0.0, 1.0)
+    span = hi - lo if hi > lo else max(abs(lo), 1.0)
+    return (lo - pad * span, hi + pad * span)
+
+
 def _draws_figure(draws: dict[str, np.ndarray], pos: int, case: str, driver: str) -> str:
     """Ultimate utilisation of one case over the draws, all and standing, and its scatter
     against ``driver`` (the results' driver of that case; none drawn where it is blank)."""
@@ -672,46 +665,38 @@ def _draws_figure(draws: dict[str, np.ndarray], pos: int, case: str, driver: str
     finite = u[np.isfinite(u)]
     top = float(min(5.0, max(2.0, np.percentile(finite, 99) * 1.1))) if finite.size else 5.0
     shown = np.clip(np.nan_to_num(u, posinf=top), 0.0, top)  # +inf (outside the base) drawn at the top
-    fig = Figure(figsize=(7.0, 2.6))
-    ax, bx = fig.subplots(1, 2)
+    size = 7 * PT
+    fig = Figure(840.0, 312.0)
     bins = np.linspace(0.0, top, 41)
-    # counted by numpy and drawn as one filled outline each (a bar patch per bin costs 40 artists)
-    ax.stairs(np.histogram(shown, bins)[0], bins, fill=True, color="#BBBBBB", label="every draw")
-    ax.stairs(
-        np.histogram(shown[stands], bins)[0],
-        bins,
-        fill=True,
-        color="#332288",
-        alpha=0.8,
-        label="wall stands today",
-    )
-    ax.axvline(1.0, color="#882255", lw=1.5, label="limit (1)")
-    ax.set_xlabel(f"ultimate utilisation, {case} ({top:.1f} = {top:.1f} or more)", fontsize=8)
-    ax.set_ylabel("draws", fontsize=8)
-    ax.legend(fontsize=7)
+    every, standing = np.histogram(shown, bins)[0], np.histogram(shown[stands], bins)[0]
+    ulim = _padded(0.0, top, 0.02)
+    ax = fig.panel(62.0, 10.0, 330.0, 238.0, ulim, (0.0, max(float(every.max(initial=0)), 1.0) * 1.05))
+    steps_x = np.repeat(bins, 2)
+    for counts, color, opacity, label in (
+        (every, "#BBBBBB", 1.0, "every draw"),
+        (standing, "#332288", 0.8, "wall stands today"),
+    ):
+        steps_y = np.concatenate([[0.0], np.repeat(counts.astype(float), 2), [0.0]])
+        ax.polygon(list(zip(steps_x, steps_y, strict=True)), color, opacity=opacity, label=label)
+    ax.vline(1.0, "#882255", 1.5 * PT, label="limit (1)")
+    ax.frame(f"ultimate utilisation, {case} ({top:.1f} = {top:.1f} or more)", "draws", yticks=4, size=size)
+    third = len(every) // 3  # the legend in the upper corner over the lower bars
+    fig.legend_column(ax, right=bool(every[-third:].max() <= every[:third].max()), size=size)
     if f"value_{driver}" in draws:
         x = np.asarray(draws[f"value_{driver}"][pos], dtype=float)
-        bx.scatter(x[~stands], shown[~stands], s=3, color="#BBBBBB")
-        bx.scatter(x[stands], shown[stands], s=3, color="#332288")
-        bx.set_xlabel(DRAWN_AXIS.get(driver, driver), fontsize=8)
+        ok = x[np.isfinite(x)]
+        xlim = _padded(float(ok.min()), float(ok.max())) if ok.size else (0.0, 1.0)
+        bx = fig.panel(472.0, 10.0, 358.0, 238.0, xlim, _padded(0.0, top))
+        bx.dots(x[~stands], shown[~stands], "#BBBBBB", 3.5)
+        bx.dots(x[stands], shown[stands], "#332288", 3.5)
+        xlabel = DRAWN_AXIS.get(driver, driver)
     else:
-        bx.text(
-            0.5,
-            0.5,
-            "no input drives this case",
-            ha="center",
-            va="center",
-            fontsize=8,
-            transform=bx.transAxes,
-        )
-    bx.axhline(1.0, color="#882255", lw=1.5)
-    bx.set_ylabel(f"ultimate utilisation, {case}", fontsize=8)
-    for a in (ax, bx):  # a few ticks: each one is a text to lay out
-        a.xaxis.set_major_locator(MaxNLocator(5))
-        a.yaxis.set_major_locator(MaxNLocator(4))
-        a.tick_params(labelsize=7)
-    fig.subplots_adjust(left=0.08, right=0.99, top=0.95, bottom=0.2, wspace=0.3)
-    return _png_data_uri(fig)
+        bx = fig.panel(472.0, 10.0, 358.0, 238.0, (0.0, 1.0), _padded(0.0, top))
+        bx.axes_text(0.5, 0.5, "no input drives this case", size)
+        xlabel = ""
+    bx.hline(1.0, "#882255", 1.5 * PT)
+    bx.frame(xlabel, f"ultimate utilisation, {case}", yticks=4, size=size)
+    return fig.data_uri(draws_alt(case, driver))
 
 
 def sheet_context(
