@@ -17,6 +17,7 @@ import math
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from html import escape
+from typing import Any
 
 import numpy as np
 
@@ -104,11 +105,11 @@ class Panel:
     figure: Figure
     marks: list[str] = field(default_factory=list)
 
-    def x(self, v: float) -> float:
+    def x(self, v: Any) -> Any:  # a number or a numpy array
         x0, x1 = self.xlim
         return self.left + (v - x0) / (x1 - x0) * self.width
 
-    def y(self, v: float) -> float:
+    def y(self, v: Any) -> Any:
         y0, y1 = self.ylim
         return self.top + (y1 - v) / (y1 - y0) * self.height
 
@@ -152,8 +153,7 @@ class Panel:
         label: str | None = None,
     ) -> None:
         """The area between two curves x1(y) and x2(y), as matplotlib's function of that name."""
-        pts = [*zip(x1, ys, strict=True), *reversed(list(zip(x2, ys, strict=True)))]
-        self.polygon(pts, color, opacity=opacity, label=label)
+        self._band(list(zip(x1, ys, strict=True)), list(zip(x2, ys, strict=True)), color, opacity, label)
 
     def fill_between(
         self,
@@ -165,8 +165,18 @@ class Panel:
         label: str | None = None,
     ) -> None:
         """The area between two curves y1(x) and y2(x)."""
-        pts = [*zip(xs, y1, strict=True), *reversed(list(zip(xs, y2, strict=True)))]
-        self.polygon(pts, color, opacity=opacity, label=label)
+        self._band(list(zip(xs, y1, strict=True)), list(zip(xs, y2, strict=True)), color, opacity, label)
+
+    def _band(
+        self,
+        one: list[tuple[float, float]],
+        other: list[tuple[float, float]],
+        color: str,
+        opacity: float,
+        label: str | None,
+    ) -> None:
+        """The polygon along one curve and back along the other."""
+        self.polygon([*one, *reversed(other)], color, opacity=opacity, label=label)
 
     def arrow(self, tail: tuple[float, float], head: tuple[float, float], color: str, width: float) -> None:
         """A straight arrow with a filled head 10 px long ending at ``head``."""
@@ -189,10 +199,7 @@ class Panel:
         keep = np.isfinite(xs) & np.isfinite(ys)
         if not keep.any():
             return
-        x0, x1 = self.xlim
-        y0, y1 = self.ylim
-        px = self.left + (xs[keep] - x0) / (x1 - x0) * self.width
-        py = self.top + (y1 - ys[keep]) / (y1 - y0) * self.height
+        px, py = self.x(xs[keep]), self.y(ys[keep])
         d = "".join(f"M{a:.1f} {b:.1f}h0" for a, b in zip(px.tolist(), py.tolist(), strict=True))
         self.marks.append(
             f'<path d="{d}" stroke="{color}" stroke-width="{_px(size)}" stroke-linecap="round" fill="none"/>'
@@ -206,13 +213,12 @@ class Panel:
         size: float = 12.0,
         anchor: str = "start",
         color: str = "#000000",
-        dy: float = 0.0,
         hang: bool = False,
     ) -> None:
-        """``words`` at data point (x, y), ``dy`` px lower; ``hang``: the text's top at that point."""
+        """``words`` at data point (x, y); ``hang``: the text's top at that point."""
         self.marks.append(
             self.figure.text_mark(
-                self.x(x), self.y(y) + dy + (0.8 * size if hang else 0.0), words, size, anchor, color
+                self.x(x), self.y(y) + (0.8 * size if hang else 0.0), words, size, anchor, color
             )
         )
 
@@ -327,10 +333,7 @@ class Figure:
             x = centre_x - sum(widths[i] for i in row) / 2
             top = y + r * (size + 6)
             for i in row:
-                self.parts.append(self._swatch(self.entries[i], x, top + size / 2))
-                self.parts.append(
-                    self.text_mark(x + 24, top + 0.85 * size, self.entries[i].label, size, "start", "#000000")
-                )
+                self._entry(self.entries[i], x, top, size)
                 x += widths[i]
         return len(rows) * (size + 6)
 
@@ -347,15 +350,18 @@ class Figure:
             'fill-opacity="0.85" stroke="#cccccc" stroke-width="0.8"/>'
         )
         for k, e in enumerate(self.entries):
-            yk = top + 4 + k * (size + 5)
-            self.parts.append(self._swatch(e, x + 5, yk + size / 2))
-            self.parts.append(self.text_mark(x + 28, yk + 0.85 * size, e.label, size, "start", "#000000"))
+            self._entry(e, x + 5, top + 4 + k * (size + 5), size)
 
-    @staticmethod
-    def _swatch(e: _Entry, x: float, y: float) -> str:
+    def _entry(self, e: _Entry, x: float, top: float, size: float) -> None:
+        """One legend entry, its swatch 18 px wide at ``x`` and its label after it."""
+        y = top + size / 2
         if e.kind == "patch":
-            return f'<rect x="{_px(x)}" y="{_px(y - 5)}" width="18" height="10" {e.style}/>'
-        return f'<line x1="{_px(x)}" y1="{_px(y)}" x2="{_px(x + 18)}" y2="{_px(y)}" {e.style}/>'
+            self.parts.append(f'<rect x="{_px(x)}" y="{_px(y - 5)}" width="18" height="10" {e.style}/>')
+        else:
+            self.parts.append(
+                f'<line x1="{_px(x)}" y1="{_px(y)}" x2="{_px(x + 18)}" y2="{_px(y)}" {e.style}/>'
+            )
+        self.parts.append(self.text_mark(x + 24, top + 0.85 * size, e.label, size, "start", "#000000"))
 
     def svg(self, title: str = "") -> str:
         """The picture as a standalone SVG document (each panel's marks clipped to its box)."""
